@@ -1,0 +1,64 @@
+/*
+ * check.h - check values: a table-driven CRC engine for any Rocksoft-model
+ * parameters (width 8..32), the named catalogue CRCs, sum8 and xor8.
+ *
+ * Parameter names and check values follow the CRC RevEng catalogue
+ * ("Catalogue of parametrised CRC algorithms", Greg Cook).  Names are the
+ * catalogue's own: "CCITT" alone names several CRCs and is not accepted.
+ *
+ * struct tp_crc holds its 256-entry table; build it once with tp_crc_init
+ * (the config loader does, at load time) and compute as often as needed.
+ */
+#ifndef TIDEPOST_CHECK_H
+#define TIDEPOST_CHECK_H
+
+#include <stdbool.h>
+#include <stddef.h>
+#include <stdint.h>
+
+#include "tidepost/status.h"
+
+struct tp_crc_params {
+	const char *name;   /* catalogue name, or NULL when given by parameters */
+	uint8_t width;      /* 8..32 */
+	uint32_t poly;      /* normal (MSB-first) form, without the top bit */
+	uint32_t init;
+	bool refin;
+	bool refout;
+	uint32_t xorout;
+	uint32_t check;     /* catalogue check value of "123456789" (0: unknown) */
+};
+
+struct tp_crc {
+	struct tp_crc_params p;
+	uint32_t table[256];
+};
+
+/* Find a named catalogue CRC (case-insensitive, aliases accepted).
+ * Returns NULL if unknown. */
+const struct tp_crc_params *tp_crc_find(const char *name);
+
+/* The catalogue table, for listing valid names: *n gets its length. */
+const struct tp_crc_params *tp_crc_catalogue(size_t *n);
+
+/* Validate p (width 8..32, values fit the width) and build the table. */
+enum tp_status tp_crc_init(struct tp_crc *c, const struct tp_crc_params *p);
+
+/* CRC of n bytes (full computation: init, refin/out, xorout). */
+uint32_t tp_crc_compute(const struct tp_crc *c, const void *data, size_t n);
+
+/* Incremental form: reg = tp_crc_start(c); reg = tp_crc_update(c, reg, ..);
+ * value = tp_crc_final(c, reg). */
+uint32_t tp_crc_start(const struct tp_crc *c);
+uint32_t tp_crc_update(const struct tp_crc *c, uint32_t reg, const void *data,
+                       size_t n);
+uint32_t tp_crc_final(const struct tp_crc *c, uint32_t reg);
+
+/* Modulo-256 sum and XOR of n bytes. */
+uint8_t tp_sum8(const void *data, size_t n);
+uint8_t tp_xor8(const void *data, size_t n);
+
+/* CRC-32C (CRC-32/ISCSI) without a table object, for the daemon's ring. */
+uint32_t tp_crc32c(uint32_t crc, const void *data, size_t n);
+
+#endif
