@@ -35,11 +35,13 @@ LIB_SRC     := $(sort $(wildcard decoder/*.c))
 DAEMON_SRC  := $(sort $(filter-out daemon/main.c,$(wildcard daemon/*.c)))
 UNIT_SRC    := $(sort $(wildcard tests/unit/test_*.c))
 FUZZ_SRC    := $(sort $(wildcard tests/fuzz/fuzz_*.c))
+TOOLS_SRC   := $(sort $(wildcard tests/tools/*.c))
 
 LIB_OBJ     := $(LIB_SRC:%.c=$(BUILD)/obj/%.o)
 DAEMON_OBJ  := $(DAEMON_SRC:%.c=$(BUILD)/obj/%.o)
 UNIT_BIN    := $(UNIT_SRC:tests/unit/%.c=$(BUILD)/tests/%)
 FUZZ_REPLAY := $(FUZZ_SRC:tests/fuzz/%.c=$(BUILD)/fuzz/%-replay)
+TOOLS_BIN   := $(TOOLS_SRC:tests/tools/%.c=$(BUILD)/tools/%)
 
 LIB         := $(BUILD)/libtidepost.a
 DAEMON_LIB  := $(BUILD)/libdaemon.a
@@ -48,7 +50,7 @@ BIN         := $(BUILD)/tidepost
 .PHONY: all deps check unit integration fuzz-replay fuzz bench demo lint clean \
         install uninstall
 
-all: $(LIB) $(BIN)
+all: $(LIB) $(BIN) $(TOOLS_BIN)
 
 $(BUILD)/obj/decoder/%.o: decoder/%.c $(wildcard include/tidepost/*.h) decoder/*.h
 	@mkdir -p $(@D)
@@ -72,6 +74,12 @@ $(BIN): $(BUILD)/obj/daemon/main.o $(DAEMON_LIB) $(LIB)
 $(BUILD)/tests/%: $(BUILD)/obj/tests/unit/%.o $(DAEMON_LIB) $(LIB)
 	@mkdir -p $(@D)
 	$(CC) $(ALL_CFLAGS) $(LDSAN) $(LDFLAGS) -o $@ $^ $(CMOCKA_LIBS) $(DEPS_LIBS) -lm
+
+# Small test helper programs (tests/tools/X.c -> $(BUILD)/tools/X), used by
+# integration and reference tests.
+$(BUILD)/tools/%: $(BUILD)/obj/tests/tools/%.o $(DAEMON_LIB) $(LIB)
+	@mkdir -p $(@D)
+	$(CC) $(ALL_CFLAGS) $(LDSAN) $(LDFLAGS) -o $@ $^ $(DEPS_LIBS) -lm
 
 # Fuzz targets: replay driver (any compiler) and libFuzzer builds (clang).
 $(BUILD)/fuzz/%-replay: tests/fuzz/%.c tests/fuzz/replay.c $(DAEMON_LIB) $(LIB)

@@ -48,6 +48,14 @@ struct config {
 int config_load(const char *path, struct config **out, struct cfg_errors *errs)
 	__attribute__((warn_unused_result));
 
+/* Same, from text in memory (used by the fuzz target and tests).  `name`
+ * is the file name used in messages; relative paths resolve against
+ * base_dir.  The text need not be NUL-terminated. */
+int config_load_buffer(const char *name, const char *text, size_t len,
+                       const char *base_dir, struct config **out,
+                       struct cfg_errors *errs)
+	__attribute__((warn_unused_result));
+
 /* Build a config from layout files only (`decode -l A.json -l B.json`). */
 int config_load_layouts(const char *const *paths, size_t n,
                         struct config **out, struct cfg_errors *errs)

@@ -58,7 +58,4 @@ uint32_t tp_crc_final(const struct tp_crc *c, uint32_t reg);
 uint8_t tp_sum8(const void *data, size_t n);
 uint8_t tp_xor8(const void *data, size_t n);
 
-/* CRC-32C (CRC-32/ISCSI) without a table object, for the daemon's ring. */
-uint32_t tp_crc32c(uint32_t crc, const void *data, size_t n);
-
 #endif
