@@ -19,6 +19,57 @@
  * carry a number too (station number, seq, Unix time, offset seconds);
  * skip entries carry flag TP_FLAG_NOT_EVALUATED and are never printed.
  *
+ * Decoding rules (decoder/layout.c implements them):
+ *  - Bit order: `big` packet bit p is bit 7 - p%8 of byte p/8 and a field
+ *    reads most-significant bit first; `little` packet bit p is bit p%8 of
+ *    byte p/8 and value bit i of a field starting at bit s is bit s + i.
+ *    Every type is N bits through that cursor; iN and `signed` bits are
+ *    two's complement; f32/f64 are the IEEE 754 bit patterns.
+ *  - Value = raw * scale + offset (an offset of 0 is not added, so -0.0
+ *    keeps its sign).  raw == missing (bit patterns, masked to the width),
+ *    a NaN/infinite float or a non-finite result -> NaN, flag 9; outside
+ *    [range_min, range_max] -> the number, flag 4; else flag 1.
+ *  - Roles are integer fields without scale, offset, missing or range.
+ *    station (unsigned, <= 32 bits), seq (unsigned) and time (signed or
+ *    not: time_s = epoch_s + raw * unit) live in the header, at most one
+ *    each; time_offset (records only, at most one) gives record time =
+ *    packet time + raw * unit, else record k is at packet time +
+ *    k * every_s (every_s <= 366 days).  A time that overflows int64 is
+ *    TP_ERR_RANGE.  Role slots carry their number with flag 1.
+ *  - The count field is an unsigned integer value header field without
+ *    scale, offset or missing; its raw value is the record count.
+ *  - Field region: fields must lie in [0, len) minus the check: with a
+ *    negative check `at` they must end before the check value; with a
+ *    positive `at` they must end before it, unless the check value lies
+ *    wholly inside a header skip entry.  Bytes after the last field are
+ *    ignored unless `length` forbids them.
+ *  - tp_decode_packet order: layout valid (TP_ERR_LAYOUT), length (over
+ *    TP_MAX_PACKET or outside length_min..length_max: TP_ERR_LENGTH), check
+ *    value and cover inside the packet (TP_ERR_SHORT), check value
+ *    (TP_ERR_CHECK, nothing decoded), header fields (TP_ERR_SHORT), record
+ *    count (count field too big: TP_ERR_COUNT; fixed count not fitting:
+ *    TP_ERR_SHORT).  No records: one reading of header values.
+ *  - Check value: CRC over covers (default [0, check start)), stored in
+ *    ceil(width / 8) bytes in check.order (the config loader sets it to
+ *    the layout's order when `order` is absent); sum8/xor8 one byte.
+ *    Cover offsets follow `at`: negative counts from the end, 0 and
+ *    positive from the start (so a cover cannot say "to the end" of a
+ *    variable-length packet when the check is at its start).
+ *  - Match: the byte-aligned integer at `at` in the layout's byte order,
+ *    sign- or zero-extended, equals `is`; out of bounds -> no match.
+ *    length_min..length_max, both 0 = any length; length_max 0 alone = no
+ *    upper bound.
+ * Encoding is the inverse: raw = round((v - offset) / scale), half away
+ * from zero, clamped to the width; floats store (v - offset) / scale
+ * clamped to the finite range.  Null (flag 9 or NaN) -> `missing`; a float
+ * without `missing` stores a quiet NaN; an integer without it is
+ * TP_ERR_RANGE.  A value landing exactly on the missing code is
+ * TP_ERR_RANGE, but one clamped onto it steps one code inwards.  Role
+ * values are never clamped (TP_ERR_RANGE if they do not fit).  The count
+ * field is set to n_records (TP_ERR_RANGE if it does not fit); a fixed
+ * count must equal n_records (TP_ERR_ARG).  The packet is zero-padded to
+ * length_min, then the check value is computed and placed.
+ *
  * Called by the daemon (inputs, decode, encode) and by station firmware.
  */
 #ifndef TIDEPOST_LAYOUT_H
@@ -158,7 +209,9 @@ struct tp_layout_problem {
 };
 
 /* Check a layout for internal consistency (widths, roles, count field,
- * check placement, sizes under TP_MAX_*).  On error fills *pb. */
+ * check placement, sizes under TP_MAX_*).  On error fills *pb (pb may
+ * be NULL) with the first problem found.  Does not check that check.crc
+ * was built by tp_crc_init beyond its width. */
 enum tp_status tp_layout_validate(const struct tp_layout *l,
                                   struct tp_layout_problem *pb);
 
@@ -173,7 +226,9 @@ size_t tp_layout_n_values(const struct tp_layout *l);
 const struct tp_field *tp_layout_field(const struct tp_layout *l, size_t i);
 
 /* Decimals a field's numbers are printed with, from scale and offset
- * (scale 0.001 -> 3); floats return -1 (print round-trip). */
+ * (scale 0.001 -> 3): max over both of the smallest d in 0..9 with
+ * x * 10^d within 1e-9 * max(1, |x * 10^d|) of a nonzero integer (or x 0);
+ * 9 if none.  Floats return -1 (print round-trip). */
 int tp_field_decimals(const struct tp_field *f);
 
 /* Do the match and length tests of l accept this packet? */
@@ -192,12 +247,15 @@ enum tp_status tp_check_verify(const struct tp_layout *l, const uint8_t *p,
  * Decode the header: length and check tests, header fields, record count.
  * TP_ERR_CHECK when the check fails (nothing decoded), TP_ERR_SHORT when
  * the fields do not fit, TP_ERR_COUNT when the count field asks for more
- * records than the packet holds.
+ * records than the packet holds; also TP_ERR_LAYOUT (layout fails
+ * tp_layout_validate), TP_ERR_LENGTH, TP_ERR_RANGE (time overflows).
+ * pk points into p: p must outlive pk.  On error pk->n_records is 0.
  */
 enum tp_status tp_decode_packet(const struct tp_layout *l, const uint8_t *p,
                                 size_t len, struct tp_packet *pk);
 
-/* Decode record k (< pk->n_records) into r, header values included. */
+/* Decode record k (< pk->n_records, else TP_ERR_ARG) into r, header
+ * values included.  Reads only inside [pk->data, pk->data + pk->len). */
 enum tp_status tp_decode_record(const struct tp_packet *pk, uint32_t k,
                                 struct tp_reading *r);
 
