@@ -1,0 +1,57 @@
+/*
+ * buf.h - a byte buffer that grows up to a cap fixed at init.
+ *
+ * Owns its storage (malloc'd, freed by buf_free).  Invariants: len < size
+ * <= max + 1 and data[len] == '\0' whenever data != NULL, so the content
+ * can be used as a C string.  Appending past `max` bytes (or failing to
+ * allocate) does not grow the buffer: it sets the sticky `err` flag, and
+ * every later append is ignored until buf_reset.  Callers append freely
+ * and check buf_failed() once, where they would use the result.
+ *
+ * Used by emit (readings as JSON lines / CSV rows) and later by the HTTP
+ * output's batch bodies.
+ */
+#ifndef TIDEPOST_BUF_H
+#define TIDEPOST_BUF_H
+
+#include <stdbool.h>
+#include <stddef.h>
+
+struct buf {
+	char *data;     /* NULL until the first append */
+	size_t len;     /* bytes used, not counting the final NUL */
+	size_t size;    /* bytes allocated */
+	size_t max;     /* cap on len */
+	bool err;       /* sticky: an append did not fit or could not grow */
+};
+
+/* Empty buffer holding at most max bytes.  Allocates nothing yet. */
+void buf_init(struct buf *b, size_t max);
+
+/* Release the storage; b may be reused after buf_init.  NULL is fine. */
+void buf_free(struct buf *b);
+
+/* Forget the content and the error; keeps the storage for reuse. */
+void buf_reset(struct buf *b);
+
+/* Appends: all-or-nothing; on failure set b->err. */
+void buf_add(struct buf *b, const void *p, size_t n);
+void buf_addc(struct buf *b, char c);
+void buf_adds(struct buf *b, const char *s);
+void buf_printf(struct buf *b, const char *fmt, ...)
+	__attribute__((format(printf, 2, 3)));
+
+/* Did any append since init/reset fail? */
+static inline bool buf_failed(const struct buf *b)
+{
+	return b->err;
+}
+
+/* Content as a C string ("" when empty); valid until the next append,
+ * reset or free. */
+const char *buf_str(const struct buf *b);
+
+/* Drop the last n bytes (n <= len). */
+void buf_trim(struct buf *b, size_t n);
+
+#endif

@@ -1,0 +1,507 @@
+/*
+ * cmd_decode.c - `tidepost decode`: archived packets (message files or
+ * captured streams) -> one reading per line on stdout, NDJSON or CSV, and
+ * a summary on stderr.
+ *
+ * Memory stays constant however large the input: one 64 KiB read buffer,
+ * one frame buffer of TP_MAX_PACKET bytes, one packet, one reading and one
+ * output line (capped), all allocated once in struct decode.
+ *
+ * Choices (the README states them):
+ * - framing: --framing, else `whole` for files named *.sbd or *.bin
+ *   (message files; any letter case), else `cobs` (also for stdin);
+ * - received time: --received, else the file's modification time (a
+ *   message file is written when it arrives), for stdin the time now;
+ * - an empty frame (two delimiters in a row) is idle fill, not counted;
+ * - a layout without a station field gives station number 0;
+ * - exit 0 if any packet decoded, 1 if none did, 2 for usage, config and
+ *   I/O errors (a file that cannot be read, stdout that cannot be
+ *   written); the other files are still decoded after an unreadable one.
+ */
+#include <errno.h>
+#include <fcntl.h>
+#include <getopt.h>
+#include <inttypes.h>
+#include <stdarg.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <strings.h>
+#include <sys/stat.h>
+#include <time.h>
+#include <unistd.h>
+
+#include "tidepost/frame.h"
+#include "tidepost/layout.h"
+
+#include "buf.h"
+#include "cli.h"
+#include "emit.h"
+#include "log.h"
+
+#define DECODE_READ_BYTES (64 * 1024)
+#define DECODE_LINE_MAX (1024 * 1024) /* one output line, at most */
+#define DECODE_MAX_WARNED 256         /* unknown stations logged once */
+
+const char cmd_decode_usage[] =
+	"usage: tidepost decode [-c CONFIG | -l LAYOUT ...] [--framing F]\n"
+	"                       [--format ndjson|csv] [--received TIME] [-v]\n"
+	"                       [FILE ... | -]\n"
+	"\n"
+	"Decode archived packets (message files or captured byte streams)\n"
+	"and write one reading per line on stdout; a summary goes to stderr.\n"
+	"Without FILE, or with -, standard input is read.\n"
+	"\n"
+	"  -c, --config CONFIG   layouts and station names from a config\n"
+	"  -l, --layout-file L   a layout file (repeat for several); station\n"
+	"                        numbers are then written as numbers\n"
+	"  --framing F           cobs, slip, hex, whole or fixed:N; default\n"
+	"                        whole for *.sbd and *.bin files, else cobs\n"
+	"  --format F            ndjson (default) or csv (RFC 4180)\n"
+	"  --received TIME       the time the packets were received (RFC 3339\n"
+	"                        or Unix seconds); default the file's\n"
+	"                        modification time, or now for stdin\n"
+	"  -v, --verbose         one line per rejected packet or broken frame\n"
+	"  -h, --help            this text\n"
+	"\n"
+	"Exit status: 0 some packet decoded, 1 no valid packet in the input,\n"
+	"2 usage, config or I/O error.\n";
+
+struct decode_opts {
+	struct cli_source src;
+	bool csv;
+	bool verbose;
+	bool has_framing;
+	enum tp_framing framing;
+	size_t fixed_n;
+	bool has_received;
+	int64_t received_s;
+};
+
+/* One input being read. */
+struct decode_input {
+	const char *name;   /* as given; "stdin" for standard input */
+	int fd;
+	int64_t received_s;
+	struct tp_framer fr;
+};
+
+struct decode {
+	struct decode_opts o;
+	struct config *cfg;
+	struct emit_csv csv;
+	struct buf line;
+	uint64_t frames, packets, readings;
+	uint64_t bad_check, unknown, broken, undecodable, unreadable;
+	bool write_failed;
+	uint32_t warned[DECODE_MAX_WARNED];
+	size_t n_warned;
+	struct tp_packet pk;
+	struct tp_reading rd;
+	uint8_t frame[TP_MAX_PACKET];
+	uint8_t in[DECODE_READ_BYTES];
+};
+
+/* The option value for --framing / --format / --received. */
+static int decode_option(struct decode_opts *o, int c, const char *arg)
+{
+	if (c == CLI_OPT_FRAMING) {
+		o->has_framing = true;
+		if (tp_framing_parse(arg, &o->framing, &o->fixed_n) == TP_OK &&
+		    (o->framing != TP_FRAMING_FIXED ||
+		     o->fixed_n <= TP_MAX_PACKET))
+			return 0;
+		log_err("decode: --framing %s: not a framing; valid: cobs, "
+		        "slip, hex, whole, fixed:N (N 1..%d)", arg,
+		        TP_MAX_PACKET);
+	} else if (c == CLI_OPT_FORMAT) {
+		o->csv = strcmp(arg, "csv") == 0;
+		if (o->csv || strcmp(arg, "ndjson") == 0)
+			return 0;
+		log_err("decode: --format %s: valid: ndjson, csv", arg);
+	} else if (c == CLI_OPT_RECEIVED) {
+		o->has_received = true;
+		if (cli_parse_time(arg, &o->received_s) == 0)
+			return 0;
+		log_err("decode: --received %s: not a time; give RFC 3339 "
+		        "(2026-11-30T07:02:11Z) or Unix seconds", arg);
+	}
+	return -1;
+}
+
+/* Parse options; returns -1 to go on, else an exit status. */
+static int decode_parse(struct decode_opts *o, int argc, char **argv)
+{
+	static const struct option opts[] = {
+		{ "config", required_argument, NULL, 'c' },
+		{ "layout-file", required_argument, NULL, 'l' },
+		{ "framing", required_argument, NULL, CLI_OPT_FRAMING },
+		{ "format", required_argument, NULL, CLI_OPT_FORMAT },
+		{ "received", required_argument, NULL, CLI_OPT_RECEIVED },
+		{ "verbose", no_argument, NULL, 'v' },
+		{ "help", no_argument, NULL, 'h' },
+		{ NULL, 0, NULL, 0 }
+	};
+	int c;
+
+	opterr = 0;
+	for (;;) {
+		c = getopt_long(argc, argv, ":c:l:vh", opts, NULL);
+		if (c == -1)
+			return -1;
+		if (c == 'c') {
+			o->src.config = optarg;
+		} else if (c == 'l') {
+			if (cli_source_add(&o->src, "decode", optarg) < 0)
+				return CLI_EXIT_USAGE;
+		} else if (c == 'v') {
+			o->verbose = true;
+		} else if (c == 'h') {
+			fputs(cmd_decode_usage, stdout);
+			return CLI_EXIT_OK;
+		} else if (c >= CLI_OPT_FRAMING && c <= CLI_OPT_RECEIVED) {
+			if (decode_option(o, c, optarg) < 0)
+				return CLI_EXIT_USAGE;
+		} else {
+			return cli_bad_option("decode", c, argv);
+		}
+	}
+}
+
+/* The station as text: config name, else the number (logged once). */
+static const char *station_text(struct decode *d, char *tmp, size_t cap)
+{
+	const struct cfg_station *st;
+	uint32_t number = d->pk.has_station ? d->pk.station : 0;
+	size_t i;
+
+	st = config_station(d->cfg, number);
+	if (st != NULL && st->name != NULL)
+		return st->name;
+	snprintf(tmp, cap, "%" PRIu32, number);
+	if (d->cfg->path == NULL)
+		return tmp;
+	for (i = 0; i < d->n_warned; i++) {
+		if (d->warned[i] == number)
+			return tmp;
+	}
+	if (d->n_warned < DECODE_MAX_WARNED) {
+		d->warned[d->n_warned++] = number;
+		log_warn("decode: station %" PRIu32 ": not in the config",
+		         number);
+	} else if (d->n_warned++ == DECODE_MAX_WARNED) {
+		log_warn("decode: more stations not in the config; not "
+		         "logged each");
+	}
+	return tmp;
+}
+
+/* Write the line buffer to stdout; false after a write error. */
+static bool decode_write(struct decode *d)
+{
+	if (d->write_failed)
+		return false;
+	if (fwrite(d->line.data, 1, d->line.len, stdout) != d->line.len) {
+		log_err("decode: write: stdout: %s", strerror(errno));
+		d->write_failed = true;
+	}
+	return !d->write_failed;
+}
+
+/* Every record of the decoded packet d->pk -> one line each. */
+static void decode_records(struct decode *d, const struct decode_input *in)
+{
+	char tmp[EMIT_NUM_MAX];
+	struct emit_reading er;
+	enum tp_status st;
+	uint32_t k;
+
+	er.station = station_text(d, tmp, sizeof(tmp));
+	er.packet = &d->pk;
+	er.reading = &d->rd;
+	er.received_s = in->received_s;
+	for (k = 0; k < d->pk.n_records && !d->write_failed; k++) {
+		st = tp_decode_record(&d->pk, k, &d->rd);
+		buf_reset(&d->line);
+		if (st == TP_OK && d->o.csv)
+			emit_csv_row(&d->line, &d->csv, &er);
+		else if (st == TP_OK)
+			emit_json(&d->line, &er);
+		if (st != TP_OK || buf_failed(&d->line)) {
+			d->undecodable++;
+			log_warn("decode: %s: offset %" PRIu64
+			         ": record %" PRIu32 ": %s", in->name,
+			         in->fr.frame_start, k,
+			         st != TP_OK ? tp_strerror(st)
+			                     : "reading longer than an output "
+			                       "line may be");
+			continue;
+		}
+		if (decode_write(d))
+			d->readings++;
+	}
+}
+
+/* Name of the check a layout uses, for messages. */
+static const char *check_name(const struct tp_layout *l)
+{
+	if (l->check.kind == TP_CHECK_SUM8)
+		return "sum8";
+	if (l->check.kind == TP_CHECK_XOR8)
+		return "xor8";
+	if (l->check.crc.p.name != NULL)
+		return l->check.crc.p.name;
+	return "CRC";
+}
+
+/* A rejected frame: count it; with -v say where and why. */
+static void decode_reject(struct decode *d, const struct decode_input *in,
+                          uint64_t *count, const char *fmt, ...)
+	__attribute__((format(printf, 4, 5)));
+
+static void decode_reject(struct decode *d, const struct decode_input *in,
+                          uint64_t *count, const char *fmt, ...)
+{
+	char why[256];
+	va_list ap;
+
+	(*count)++;
+	if (!d->o.verbose)
+		return;
+	va_start(ap, fmt);
+	vsnprintf(why, sizeof(why), fmt, ap);
+	va_end(ap);
+	log_info("decode: %s: offset %" PRIu64 ": %s", in->name,
+	         in->fr.frame_start, why);
+}
+
+/* One frame: pick the layout, check, decode, write its readings. */
+static void decode_frame(struct decode *d, const struct decode_input *in)
+{
+	const struct config *cfg = d->cfg;
+	const uint8_t *p = tp_frame_data(&in->fr);
+	const struct tp_layout *l;
+	size_t len = in->fr.len;
+	enum tp_status st;
+	int li;
+
+	if (len == 0)
+		return;
+	d->frames++;
+	li = tp_layout_select(cfg->layout_ptrs, cfg->n_layouts, p, len);
+	if (li < 0) {
+		decode_reject(d, in, &d->unknown, "unknown layout (%zu bytes)",
+		              len);
+		return;
+	}
+	l = cfg->layout_ptrs[li];
+	st = tp_decode_packet(l, p, len, &d->pk);
+	if (st == TP_ERR_CHECK) {
+		decode_reject(d, in, &d->bad_check, "bad check (%s)",
+		              check_name(l));
+	} else if (st != TP_OK) {
+		decode_reject(d, in, &d->undecodable, "undecodable as %s: %s",
+		              l->name, tp_strerror(st));
+	} else {
+		d->packets++;
+		if (!d->pk.has_time)
+			d->pk.time_s = in->received_s;
+		decode_records(d, in);
+	}
+}
+
+static void decode_result(struct decode *d, const struct decode_input *in,
+                          enum tp_frame_result r)
+{
+	if (r == TP_FRAME_READY)
+		decode_frame(d, in);
+	else if (r == TP_FRAME_BROKEN)
+		decode_reject(d, in, &d->broken, "broken frame");
+}
+
+/* Push n bytes of d->in through the framer. */
+static void decode_chunk(struct decode *d, struct decode_input *in, size_t n)
+{
+	enum tp_frame_result r;
+	size_t off = 0, used;
+
+	while (off < n && !d->write_failed) {
+		used = 0;
+		r = tp_frame_push(&in->fr, d->in + off, n - off, &used);
+		off += used;
+		decode_result(d, in, r);
+		if (r == TP_FRAME_MORE && used == 0)
+			break;
+	}
+}
+
+/* Read in->fd to its end.  0, or -1 on a read error (logged). */
+static int decode_stream(struct decode *d, struct decode_input *in)
+{
+	ssize_t n;
+
+	for (;;) {
+		n = read(in->fd, d->in, sizeof(d->in));
+		if (n < 0 && errno == EINTR)
+			continue;
+		if (n < 0) {
+			log_err("decode: read: %s: %s", in->name,
+			        strerror(errno));
+			return -1;
+		}
+		if (n == 0 || d->write_failed)
+			break;
+		decode_chunk(d, in, (size_t)n);
+	}
+	decode_result(d, in, tp_frame_finish(&in->fr));
+	return 0;
+}
+
+/* Does the file name end in .sbd or .bin (a message file)? */
+static bool is_message_file(const char *name)
+{
+	size_t n = strlen(name);
+
+	return n > 4 && (strcasecmp(name + n - 4, ".sbd") == 0 ||
+	                 strcasecmp(name + n - 4, ".bin") == 0);
+}
+
+/* Open one input, set its framing and received time. */
+static int decode_open(struct decode *d, struct decode_input *in,
+                       const char *path)
+{
+	enum tp_framing kind = TP_FRAMING_COBS;
+	bool is_stdin = strcmp(path, "-") == 0;
+	struct stat sb;
+
+	in->name = is_stdin ? "stdin" : path;
+	in->fd = is_stdin ? STDIN_FILENO : open(path, O_RDONLY | O_CLOEXEC);
+	if (in->fd < 0 || fstat(in->fd, &sb) < 0) {
+		log_err("decode: open: %s: %s", path, strerror(errno));
+		if (in->fd > STDIN_FILENO)
+			close(in->fd);
+		return -1;
+	}
+	in->received_s = is_stdin ? (int64_t)time(NULL) : (int64_t)sb.st_mtime;
+	if (d->o.has_received)
+		in->received_s = d->o.received_s;
+	if (d->o.has_framing)
+		kind = d->o.framing;
+	else if (!is_stdin && is_message_file(path))
+		kind = TP_FRAMING_WHOLE;
+	if (tp_frame_init(&in->fr, kind, d->o.fixed_n, d->frame,
+	                  sizeof(d->frame)) != TP_OK) {
+		log_err("decode: %s: framing cannot be set up", path);
+		if (!is_stdin)
+			close(in->fd);
+		return -1;
+	}
+	return 0;
+}
+
+static void decode_file(struct decode *d, const char *path)
+{
+	struct decode_input in;
+
+	if (decode_open(d, &in, path) < 0) {
+		d->unreadable++;
+		return;
+	}
+	if (decode_stream(d, &in) < 0)
+		d->unreadable++;
+	if (in.fd != STDIN_FILENO)
+		close(in.fd);
+}
+
+static const char *plural(uint64_t n, const char *one, const char *many)
+{
+	return n == 1 ? one : many;
+}
+
+static void decode_summary(const struct decode *d)
+{
+	char extra[64] = "";
+
+	if (d->unreadable > 0)
+		snprintf(extra, sizeof(extra), ", %" PRIu64 " unreadable %s",
+		         d->unreadable,
+		         plural(d->unreadable, "input", "inputs"));
+	log_info("decode: %" PRIu64 " %s, %" PRIu64 " %s, %" PRIu64 " %s, "
+	         "%" PRIu64 " %s, %" PRIu64 " %s, %" PRIu64 " undecodable%s",
+	         d->frames, plural(d->frames, "frame", "frames"),
+	         d->readings, plural(d->readings, "reading", "readings"),
+	         d->bad_check, plural(d->bad_check, "bad check", "bad checks"),
+	         d->unknown,
+	         plural(d->unknown, "unknown layout", "unknown layouts"),
+	         d->broken,
+	         plural(d->broken, "broken frame", "broken frames"),
+	         d->undecodable, extra);
+}
+
+/* CSV: build the columns and write the header before any input. */
+static int decode_start(struct decode *d)
+{
+	if (!d->o.csv)
+		return 0;
+	if (emit_csv_init(&d->csv, d->cfg->layout_ptrs, d->cfg->n_layouts) <
+	    0) {
+		log_err("decode: csv columns: %s", strerror(errno));
+		return -1;
+	}
+	buf_reset(&d->line);
+	emit_csv_header(&d->line, &d->csv);
+	if (buf_failed(&d->line)) {
+		log_err("decode: csv header: longer than an output line may "
+		        "be");
+		return -1;
+	}
+	return decode_write(d) ? 0 : -1;
+}
+
+/* Decode every input; the exit status. */
+static int decode_run(struct decode *d, int nfiles, char **files)
+{
+	int i;
+
+	if (decode_start(d) < 0)
+		return CLI_EXIT_USAGE;
+	if (nfiles == 0)
+		decode_file(d, "-");
+	for (i = 0; i < nfiles && !d->write_failed; i++)
+		decode_file(d, files[i]);
+	if (!d->write_failed && fflush(stdout) != 0) {
+		log_err("decode: write: stdout: %s", strerror(errno));
+		d->write_failed = true;
+	}
+	decode_summary(d);
+	if (d->unreadable > 0 || d->write_failed)
+		return CLI_EXIT_USAGE;
+	return d->packets > 0 ? CLI_EXIT_OK : CLI_EXIT_FAIL;
+}
+
+int cmd_decode(int argc, char **argv)
+{
+	static char outbuf[64 * 1024];
+	struct decode *d;
+	int rc;
+
+	d = calloc(1, sizeof(*d));
+	if (d == NULL) {
+		log_err("decode: start: %s", strerror(errno));
+		return CLI_EXIT_USAGE;
+	}
+	buf_init(&d->line, DECODE_LINE_MAX);
+	rc = decode_parse(&d->o, argc, argv);
+	if (rc < 0 && cli_source_load(&d->o.src, "decode", &d->cfg) < 0)
+		rc = CLI_EXIT_USAGE;
+	if (rc < 0) {
+		setvbuf(stdout, outbuf, _IOFBF, sizeof(outbuf));
+		rc = decode_run(d, argc - optind, argv + optind);
+		fflush(stdout);
+	}
+	emit_csv_free(&d->csv);
+	buf_free(&d->line);
+	config_free(d->cfg);
+	free(d);
+	return rc;
+}

@@ -1,0 +1,129 @@
+/*
+ * emit.h - writing readings out: one JSON line (WIRE.md) or one CSV row
+ * (RFC 4180), into a capped struct buf.  Also the pieces they are made
+ * of, which other writers reuse: numbers at the precision of their field,
+ * JSON strings, RFC 3339 times, reading ids, CSV cells.
+ *
+ * Owns nothing but the column table of struct emit_csv (emit_csv_init /
+ * emit_csv_free).  Every writer appends to a struct buf and relies on its
+ * sticky error: the caller checks buf_failed() once per line.
+ *
+ * Choices made here (the README states them):
+ * - Numbers of integer-typed fields (uN, iN, bits) are written with
+ *   exactly tp_field_decimals() decimals ("%.*f"), so scale 0.001 gives
+ *   8.012, never 8.011999999; a value that rounds to zero is written
+ *   without a minus sign.  f32 fields are written with 9 significant
+ *   digits ("%.9g", enough to round-trip any float), f64 fields with the
+ *   shortest of 15, 16 or 17 significant digits that reads back as the
+ *   same double.
+ * - A value is null when its flag is 9 or it is not a finite number (JSON
+ *   has no NaN or Inf); a null value is always written with flag 9.
+ * - `seq` is null (JSON) or an empty cell (CSV) when the layout has no
+ *   seq field; the id then uses 0.
+ * - Times are UTC, RFC 3339 with "Z", whole seconds.  Times before
+ *   0000-01-01T00:00:00Z or after 9999-12-31T23:59:59Z are written as
+ *   those bounds (RFC 3339 has four-digit years); the id keeps the true
+ *   Unix seconds so it stays unique.
+ * - JSON strings escape '"', '\\' and every control byte (< 0x20, 0x7f)
+ *   as \u00XX; bytes that are not valid UTF-8 become U+FFFD, so the
+ *   output is always valid JSON.
+ * - CSV cells are quoted when they hold a comma, quote, CR or LF (quotes
+ *   doubled); lines end with CRLF.
+ *
+ * Called by `tidepost decode` and, later, by the daemon's outputs.
+ */
+#ifndef TIDEPOST_EMIT_H
+#define TIDEPOST_EMIT_H
+
+#include <stdbool.h>
+#include <stddef.h>
+#include <stdint.h>
+
+#include "tidepost/layout.h"
+
+#include "buf.h"
+
+/* Times RFC 3339 can write: 0000-01-01T00:00:00Z .. 9999-12-31T23:59:59Z */
+#define EMIT_TIME_MIN (-62167219200LL)
+#define EMIT_TIME_MAX 253402300799LL
+
+/* Room for a station number, time and seq in text ("%" PRIu64 ...). */
+#define EMIT_NUM_MAX 24
+
+/* One reading and what it came from; nothing is owned. */
+struct emit_reading {
+	const char *station;            /* config name, or the number as text */
+	const struct tp_packet *packet; /* packet->layout is the layout */
+	const struct tp_reading *reading;
+	int64_t received_s;             /* Unix seconds the packet came in */
+};
+
+/* Is slot f a value (printed in values/flags), not a role or skip? */
+bool emit_is_value(const struct tp_field *f);
+
+/* A number as its field wants it (see above).  Non-finite -> "null". */
+void emit_number(struct buf *b, const struct tp_field *f, double v);
+
+/* The three number forms emit_number chooses between. */
+void emit_fixed(struct buf *b, double v, int decimals);
+void emit_float32(struct buf *b, double v);
+void emit_shortest(struct buf *b, double v);
+
+/* s as a JSON string with its quotes. */
+void emit_json_string(struct buf *b, const char *s);
+
+/* t (Unix seconds) as "YYYY-MM-DDTHH:MM:SSZ", clamped (see above). */
+void emit_time(struct buf *b, int64_t t);
+
+/*
+ * Parse an RFC 3339 date-time ("2026-11-30T06:15:00Z", lower-case t/z,
+ * a space for T, fractional seconds (dropped) and +hh:mm / -hh:mm offsets
+ * are accepted) into Unix seconds.  Returns 0, or -1 if s is not one.
+ */
+int emit_parse_time(const char *s, int64_t *out)
+	__attribute__((warn_unused_result));
+
+/* "<station>-<packet time>-<seq>-<record>", e.g. "rf2-1796020500-118-3". */
+void emit_id(struct buf *b, const char *station, int64_t packet_time_s,
+             uint64_t seq, uint32_t record);
+
+/* The id of a reading. */
+void emit_reading_id(struct buf *b, const struct emit_reading *er);
+
+/* The reading as one JSON object line, '\n' included. */
+void emit_json(struct buf *b, const struct emit_reading *er);
+
+/* One CSV cell, quoted when needed (no separator). */
+void emit_csv_cell(struct buf *b, const char *s, size_t n);
+
+/*
+ * CSV column table: id,station,time,seq, then <name>,<name>_flag for
+ * every value name of the given layouts, the union in order of first
+ * appearance.  Built before any input, so the header comes first and
+ * each row costs no memory.
+ */
+struct emit_csv {
+	const struct tp_layout *const *layouts; /* not owned */
+	size_t n_layouts;
+	const char **names;    /* n_names value names (borrowed strings) */
+	size_t n_names;
+	int *slot;             /* [layout * n_names + column]: slot or -1 */
+};
+
+/* Build the table.  Returns 0, or -1 (out of memory, errno set). */
+int emit_csv_init(struct emit_csv *c, const struct tp_layout *const *ls,
+                  size_t n) __attribute__((warn_unused_result));
+
+/* Release the table; NULL is fine. */
+void emit_csv_free(struct emit_csv *c);
+
+/* The header line, CRLF included. */
+void emit_csv_header(struct buf *b, const struct emit_csv *c);
+
+/* One reading as a CSV row, CRLF included.  A column the reading's layout
+ * lacks, and a null value, leave empty cells.  Sets the buffer's error if
+ * the layout is not one the table was built for. */
+void emit_csv_row(struct buf *b, const struct emit_csv *c,
+                  const struct emit_reading *er);
+
+#endif
