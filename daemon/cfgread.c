@@ -259,9 +259,9 @@ void opt_defaults(const struct opt_table *t, void *dst)
 
 	for (i = 0; i < t->n; i++) {
 		o = &t->opt[i];
-		p = (char *)dst + o->off;
 		if (o->off == OPT_NOWHERE)
 			continue;
+		p = (char *)dst + o->off;
 		if (o->type == OPT_BOOL)
 			*(bool *)p = o->def != 0;
 		else if (o->type == OPT_UINT)
