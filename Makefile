@@ -126,3 +126,99 @@ lint:
 
 clean:
 	rm -rf $(BUILD) build-*
+
+# ---- install / uninstall ------------------------------------------------
+# `make install` (as root, or with DESTDIR=/some/stage for packaging) puts
+# the program, the library, its headers and pkg-config file, the manual
+# pages, the systemd unit and sysusers file, and the example config under
+# $(SYSCONFDIR)/tidepost.  It never replaces the operator's files: the
+# config is installed only as example.json, and a layout file that was
+# changed in place is kept.  `make uninstall` removes exactly what install
+# put; files under $(SYSCONFDIR)/tidepost go only when unchanged.
+UNITDIR      ?= $(PREFIX)/lib/systemd/system
+SYSUSERSDIR  ?= $(PREFIX)/lib/sysusers.d
+PKGCONFIGDIR ?= $(LIBDIR)/pkgconfig
+INSTALL      ?= install
+ETCDIR       := $(SYSCONFDIR)/tidepost
+
+PUB_HEADERS := $(notdir $(sort $(wildcard include/tidepost/*.h)))
+EX_LAYOUTS  := $(notdir $(sort $(wildcard config/layouts/*.json)))
+MAN1_PAGES  := tidepost.1
+MAN5_PAGES  := tidepost-config.5 tidepost-layout.5
+INST_STAGE  := $(BUILD)/install
+
+# Run-time paths (no DESTDIR) written into the .pc file and the unit.
+PC_SUBST   := -e 's|@PREFIX@|$(PREFIX)|g' -e 's|@LIBDIR@|$(LIBDIR)|g' \
+              -e 's|@INCLUDEDIR@|$(INCLUDEDIR)|g' -e 's|@VERSION@|$(VERSION)|g'
+UNIT_SUBST := -e 's|/usr/local/bin/tidepost|$(BINDIR)/tidepost|g' \
+              -e 's|/etc/tidepost/|$(ETCDIR)/|g'
+
+# Always regenerated: PREFIX and friends may differ from the last run.
+$(INST_STAGE)/tidepost.pc: config/tidepost.pc.in FORCE
+	@mkdir -p $(@D)
+	sed $(PC_SUBST) config/tidepost.pc.in > $@
+$(INST_STAGE)/tidepost.service: config/tidepost.service FORCE
+	@mkdir -p $(@D)
+	sed $(UNIT_SUBST) config/tidepost.service > $@
+FORCE:
+.PHONY: FORCE
+
+install: $(LIB) $(BIN) $(INST_STAGE)/tidepost.pc \
+         $(INST_STAGE)/tidepost.service
+	$(INSTALL) -d "$(DESTDIR)$(BINDIR)" "$(DESTDIR)$(LIBDIR)" \
+		"$(DESTDIR)$(PKGCONFIGDIR)" "$(DESTDIR)$(INCLUDEDIR)/tidepost" \
+		"$(DESTDIR)$(MANDIR)/man1" "$(DESTDIR)$(MANDIR)/man5" \
+		"$(DESTDIR)$(UNITDIR)" "$(DESTDIR)$(SYSUSERSDIR)" \
+		"$(DESTDIR)$(ETCDIR)/layouts"
+	$(INSTALL) -m 0755 $(BIN) "$(DESTDIR)$(BINDIR)/tidepost"
+	$(INSTALL) -m 0644 $(LIB) "$(DESTDIR)$(LIBDIR)/libtidepost.a"
+	$(INSTALL) -m 0644 $(addprefix include/tidepost/,$(PUB_HEADERS)) \
+		"$(DESTDIR)$(INCLUDEDIR)/tidepost"
+	$(INSTALL) -m 0644 $(INST_STAGE)/tidepost.pc \
+		"$(DESTDIR)$(PKGCONFIGDIR)/tidepost.pc"
+	$(INSTALL) -m 0644 $(addprefix man/,$(MAN1_PAGES)) \
+		"$(DESTDIR)$(MANDIR)/man1"
+	$(INSTALL) -m 0644 $(addprefix man/,$(MAN5_PAGES)) \
+		"$(DESTDIR)$(MANDIR)/man5"
+	$(INSTALL) -m 0644 $(INST_STAGE)/tidepost.service \
+		"$(DESTDIR)$(UNITDIR)/tidepost.service"
+	$(INSTALL) -m 0644 config/tidepost.sysusers \
+		"$(DESTDIR)$(SYSUSERSDIR)/tidepost.conf"
+	$(INSTALL) -m 0644 config/example.json \
+		"$(DESTDIR)$(ETCDIR)/example.json"
+	@for f in $(EX_LAYOUTS); do \
+		t="$(DESTDIR)$(ETCDIR)/layouts/$$f"; \
+		if [ -e "$$t" ] && ! cmp -s "config/layouts/$$f" "$$t"; then \
+			echo "install: $$t was changed here: kept," \
+				"not replaced"; \
+		else \
+			echo "$(INSTALL) -m 0644 config/layouts/$$f $$t"; \
+			$(INSTALL) -m 0644 "config/layouts/$$f" "$$t" || \
+				exit 1; \
+		fi; \
+	done
+
+uninstall:
+	rm -f "$(DESTDIR)$(BINDIR)/tidepost" \
+		"$(DESTDIR)$(LIBDIR)/libtidepost.a" \
+		"$(DESTDIR)$(PKGCONFIGDIR)/tidepost.pc" \
+		"$(DESTDIR)$(UNITDIR)/tidepost.service" \
+		"$(DESTDIR)$(SYSUSERSDIR)/tidepost.conf"
+	for f in $(PUB_HEADERS); do \
+		rm -f "$(DESTDIR)$(INCLUDEDIR)/tidepost/$$f"; done
+	for f in $(MAN1_PAGES); do rm -f "$(DESTDIR)$(MANDIR)/man1/$$f"; done
+	for f in $(MAN5_PAGES); do rm -f "$(DESTDIR)$(MANDIR)/man5/$$f"; done
+	rmdir "$(DESTDIR)$(INCLUDEDIR)/tidepost" 2>/dev/null || true
+	@for f in example.json $(addprefix layouts/,$(EX_LAYOUTS)); do \
+		t="$(DESTDIR)$(ETCDIR)/$$f"; \
+		[ -e "$$t" ] || continue; \
+		if cmp -s "config/$$f" "$$t"; then \
+			echo "rm -f $$t"; rm -f "$$t"; \
+		else \
+			echo "uninstall: $$t was changed here: kept"; \
+		fi; \
+	done
+	@for d in "$(DESTDIR)$(ETCDIR)/layouts" "$(DESTDIR)$(ETCDIR)"; do \
+		[ ! -d "$$d" ] || rmdir "$$d" 2>/dev/null || \
+		echo "uninstall: $$d kept: it holds the operator's files"; \
+	done
