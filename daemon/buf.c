@@ -68,7 +68,8 @@ static bool reserve(struct buf *b, size_t extra)
 
 void buf_add(struct buf *b, const void *p, size_t n)
 {
-	if (!reserve(b, n))
+	if ((b->err || b->data == NULL || n >= b->size - b->len) &&
+	    !reserve(b, n))
 		return;
 	if (n > 0)
 		memcpy(b->data + b->len, p, n);
@@ -78,7 +79,11 @@ void buf_add(struct buf *b, const void *p, size_t n)
 
 void buf_addc(struct buf *b, char c)
 {
-	buf_add(b, &c, 1);
+	if ((b->err || b->data == NULL || b->size - b->len < 2) &&
+	    !reserve(b, 1))
+		return;
+	b->data[b->len++] = c;
+	b->data[b->len] = '\0';
 }
 
 void buf_adds(struct buf *b, const char *s)
@@ -122,4 +127,24 @@ void buf_trim(struct buf *b, size_t n)
 	b->len -= n;
 	if (b->data != NULL)
 		b->data[b->len] = '\0';
+}
+
+void buf_rewind(struct buf *b, size_t len)
+{
+	if (len < b->len)
+		b->len = len;
+	b->err = false;
+	if (b->data != NULL)
+		b->data[b->len] = '\0';
+}
+
+char *buf_room_slow(struct buf *b, size_t n)
+{
+	if (b->err || n > b->max - b->len)
+		return NULL;
+	if (!reserve(b, n)) {
+		b->err = false; /* out of memory: the fallback sets it */
+		return NULL;
+	}
+	return b->data + b->len;
 }

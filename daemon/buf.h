@@ -54,4 +54,33 @@ const char *buf_str(const struct buf *b);
 /* Drop the last n bytes (n <= len). */
 void buf_trim(struct buf *b, size_t n);
 
+/* Back to the first len bytes (len <= b->len) with the error cleared:
+ * undoes whatever was appended since b->len was len, failed or not. */
+void buf_rewind(struct buf *b, size_t len);
+
+/*
+ * Writing in place, for hot paths: buf_room returns where n more bytes
+ * (and the NUL after them) may be written, or NULL when they do not fit
+ * under the cap, cannot be allocated or the buffer has failed already.
+ * A NULL changes nothing (the error is not set): the caller falls back
+ * to the ordinary appends, which set it if the bytes really do not fit.
+ * buf_commit(b, end) then makes the bytes up to end (at most n past the
+ * pointer returned) part of the content.  Nothing else may touch b in
+ * between.
+ */
+char *buf_room_slow(struct buf *b, size_t n);
+
+static inline char *buf_room(struct buf *b, size_t n)
+{
+	if (!b->err && b->data != NULL && n < b->size - b->len)
+		return b->data + b->len;
+	return buf_room_slow(b, n);
+}
+
+static inline void buf_commit(struct buf *b, char *end)
+{
+	b->len = (size_t)(end - b->data);
+	*end = '\0';
+}
+
 #endif

@@ -6,6 +6,7 @@
  */
 #include <string.h>
 
+#include "cfgderive.h"
 #include "cfgload.h"
 
 /* "7" -> 7; no sign, no leading zeros, at most 4294967295. */
@@ -86,6 +87,16 @@ static int battery(struct ld *ld, const cJSON *node, struct config *c,
 		       "%.15g is not below warn_v %.15g; the cutoff"
 		       " lies below the warning level",
 		       b->cutoff_v, b->warn_v);
+		ld_pop(ld, o2);
+		bad = 1;
+	}
+	n = opt_seen(&opt_battery, seen, "critical_v");
+	if (n != NULL && ((b->warn_v > 0 && b->critical_v >= b->warn_v) ||
+	                  b->critical_v <= b->cutoff_v)) {
+		o2 = ld_key(ld, "critical_v");
+		ld_err(ld, n, 0,
+		       "%.15g is not between cutoff_v and warn_v; the"
+		       " critical level lies between them", b->critical_v);
 		ld_pop(ld, o2);
 		bad = 1;
 	}
@@ -304,6 +315,7 @@ static int station(struct ld *ld, const cJSON *m, struct config *c,
 	bad |= n != NULL && qc(ld, n, c, st) != 0;
 	n = opt_seen(&opt_station, seen, "battery");
 	bad |= n != NULL && battery(ld, n, c, &st->battery) != 0;
+	bad |= cfg_station_science(ld, m, c, st) != 0; /* cfgderive.c */
 	return bad ? -1 : 0;
 }
 

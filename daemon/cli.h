@@ -72,10 +72,12 @@ int cli_parse_time(const char *s, int64_t *out)
 int cmd_decode(int argc, char **argv);
 int cmd_encode(int argc, char **argv);
 int cmd_check(int argc, char **argv);
+int cmd_status(int argc, char **argv);
 
 extern const char cmd_decode_usage[];
 extern const char cmd_encode_usage[];
 extern const char cmd_check_usage[];
+extern const char cmd_status_usage[];
 
 /* Parse a decimal integer that must fill s ("" and "12x" are errors).
  * 0, or -1. */

@@ -5,7 +5,12 @@
  *
  * Memory stays constant however large the input: one 64 KiB read buffer,
  * one frame buffer of TP_MAX_PACKET bytes, one packet, one reading and one
- * output line (capped), all allocated once in struct decode.
+ * output buffer (64 KiB of lines plus one capped line), all allocated once
+ * in struct decode, plus the per-layout output plans (emit.h).
+ *
+ * Speed: lines are appended to the output buffer and written to stdout
+ * with write(2) whenever 64 KiB have gathered, not one stdio call per
+ * line; each line is still checked against DECODE_LINE_MAX on its own.
  *
  * Choices (the README states them):
  * - framing: --framing, else `whole` for files named *.sbd or *.bin
@@ -41,6 +46,7 @@
 
 #define DECODE_READ_BYTES (64 * 1024)
 #define DECODE_LINE_MAX (1024 * 1024) /* one output line, at most */
+#define DECODE_OUT_FLUSH (64 * 1024)  /* write stdout at this much */
 #define DECODE_MAX_WARNED 256         /* unknown stations logged once */
 
 const char cmd_decode_usage[] =
@@ -90,7 +96,8 @@ struct decode {
 	struct decode_opts o;
 	struct config *cfg;
 	struct emit_csv csv;
-	struct buf line;
+	struct emit_plans plans;
+	struct buf out;         /* lines not yet written to stdout */
 	uint64_t frames, packets, readings;
 	uint64_t bad_check, unknown, broken, undecodable, unreadable;
 	bool write_failed;
@@ -196,16 +203,54 @@ static const char *station_text(struct decode *d, char *tmp, size_t cap)
 	return tmp;
 }
 
-/* Write the line buffer to stdout; false after a write error. */
-static bool decode_write(struct decode *d)
+/* Write the output buffer to stdout and empty it; false after a write
+ * error (logged once; what is left is dropped). */
+static bool decode_flush(struct decode *d)
 {
-	if (d->write_failed)
-		return false;
-	if (fwrite(d->line.data, 1, d->line.len, stdout) != d->line.len) {
-		log_err("decode: write: stdout: %s", strerror(errno));
-		d->write_failed = true;
+	const char *p = d->out.data;
+	size_t left = d->out.len;
+	ssize_t n;
+
+	while (!d->write_failed && left > 0) {
+		n = write(STDOUT_FILENO, p, left);
+		if (n < 0 && errno == EINTR)
+			continue;
+		if (n < 0) {
+			log_err("decode: write: stdout: %s", strerror(errno));
+			d->write_failed = true;
+			break;
+		}
+		p += n;
+		left -= (size_t)n;
 	}
+	buf_reset(&d->out);
 	return !d->write_failed;
+}
+
+/* Append record k of d->pk as one line.  TP_OK, the decoder's status,
+ * or TP_ERR_SPACE when the line is longer than DECODE_LINE_MAX (then
+ * nothing is appended). */
+static enum tp_status decode_line(struct decode *d, uint32_t k,
+                                  const struct emit_reading *er)
+{
+	size_t start;
+	enum tp_status st;
+
+	st = tp_decode_record(&d->pk, k, &d->rd);
+	if (st != TP_OK)
+		return st;
+	if (d->out.len >= DECODE_OUT_FLUSH && !decode_flush(d))
+		return TP_OK;
+	start = d->out.len;
+	if (d->o.csv)
+		emit_csv_row(&d->out, &d->csv, er);
+	else
+		emit_json_planned(&d->out, &d->plans, er);
+	if (buf_failed(&d->out) || d->out.len - start > DECODE_LINE_MAX) {
+		buf_rewind(&d->out, start);
+		return TP_ERR_SPACE;
+	}
+	return TP_OK;
 }
 
 /* Every record of the decoded packet d->pk -> one line each. */
@@ -221,23 +266,18 @@ static void decode_records(struct decode *d, const struct decode_input *in)
 	er.reading = &d->rd;
 	er.received_s = in->received_s;
 	for (k = 0; k < d->pk.n_records && !d->write_failed; k++) {
-		st = tp_decode_record(&d->pk, k, &d->rd);
-		buf_reset(&d->line);
-		if (st == TP_OK && d->o.csv)
-			emit_csv_row(&d->line, &d->csv, &er);
-		else if (st == TP_OK)
-			emit_json(&d->line, &er);
-		if (st != TP_OK || buf_failed(&d->line)) {
+		st = decode_line(d, k, &er);
+		if (st != TP_OK) {
 			d->undecodable++;
 			log_warn("decode: %s: offset %" PRIu64
 			         ": record %" PRIu32 ": %s", in->name,
 			         in->fr.frame_start, k,
-			         st != TP_OK ? tp_strerror(st)
+			         st != TP_ERR_SPACE ? tp_strerror(st)
 			                     : "reading longer than an output "
 			                       "line may be");
 			continue;
 		}
-		if (decode_write(d))
+		if (!d->write_failed)
 			d->readings++;
 	}
 }
@@ -295,7 +335,7 @@ static void decode_frame(struct decode *d, const struct decode_input *in)
 		return;
 	}
 	l = cfg->layout_ptrs[li];
-	st = tp_decode_packet(l, p, len, &d->pk);
+	st = tp_decode_validated(l, p, len, &d->pk); /* config validated l */
 	if (st == TP_ERR_CHECK) {
 		decode_reject(d, in, &d->bad_check, "bad check (%s)",
 		              check_name(l));
@@ -438,9 +478,14 @@ static void decode_summary(const struct decode *d)
 	         d->undecodable, extra);
 }
 
-/* CSV: build the columns and write the header before any input. */
+/* Output plans; for CSV the columns and the header, before any input. */
 static int decode_start(struct decode *d)
 {
+	if (!d->o.csv && emit_plans_init(&d->plans, d->cfg->layout_ptrs,
+	                                 d->cfg->n_layouts) < 0) {
+		log_err("decode: output plans: %s", strerror(errno));
+		return -1;
+	}
 	if (!d->o.csv)
 		return 0;
 	if (emit_csv_init(&d->csv, d->cfg->layout_ptrs, d->cfg->n_layouts) <
@@ -448,14 +493,13 @@ static int decode_start(struct decode *d)
 		log_err("decode: csv columns: %s", strerror(errno));
 		return -1;
 	}
-	buf_reset(&d->line);
-	emit_csv_header(&d->line, &d->csv);
-	if (buf_failed(&d->line)) {
+	emit_csv_header(&d->out, &d->csv);
+	if (buf_failed(&d->out) || d->out.len > DECODE_LINE_MAX) {
 		log_err("decode: csv header: longer than an output line may "
 		        "be");
 		return -1;
 	}
-	return decode_write(d) ? 0 : -1;
+	return decode_flush(d) ? 0 : -1; /* a bad stdout shows at once */
 }
 
 /* Decode every input; the exit status. */
@@ -469,6 +513,7 @@ static int decode_run(struct decode *d, int nfiles, char **files)
 		decode_file(d, "-");
 	for (i = 0; i < nfiles && !d->write_failed; i++)
 		decode_file(d, files[i]);
+	decode_flush(d);
 	if (!d->write_failed && fflush(stdout) != 0) {
 		log_err("decode: write: stdout: %s", strerror(errno));
 		d->write_failed = true;
@@ -481,7 +526,6 @@ static int decode_run(struct decode *d, int nfiles, char **files)
 
 int cmd_decode(int argc, char **argv)
 {
-	static char outbuf[64 * 1024];
 	struct decode *d;
 	int rc;
 
@@ -490,17 +534,17 @@ int cmd_decode(int argc, char **argv)
 		log_err("decode: start: %s", strerror(errno));
 		return CLI_EXIT_USAGE;
 	}
-	buf_init(&d->line, DECODE_LINE_MAX);
+	buf_init(&d->out, DECODE_OUT_FLUSH + DECODE_LINE_MAX);
 	rc = decode_parse(&d->o, argc, argv);
 	if (rc < 0 && cli_source_load(&d->o.src, "decode", &d->cfg) < 0)
 		rc = CLI_EXIT_USAGE;
 	if (rc < 0) {
-		setvbuf(stdout, outbuf, _IOFBF, sizeof(outbuf));
 		rc = decode_run(d, argc - optind, argv + optind);
 		fflush(stdout);
 	}
 	emit_csv_free(&d->csv);
-	buf_free(&d->line);
+	emit_plans_free(&d->plans);
+	buf_free(&d->out);
 	config_free(d->cfg);
 	free(d);
 	return rc;

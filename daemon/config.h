@@ -27,6 +27,8 @@
 
 #include "tidepost/frame.h"
 #include "tidepost/layout.h"
+#include "tidepost/derive.h" /* added for process.h */
+#include "tidepost/qc.h"
 
 #define CFG_MAX_ERRORS       64
 #define CFG_MAX_CONFIG_BYTES (1024 * 1024) /* config file size cap */
@@ -76,6 +78,14 @@ struct cfg_qc {
 	uint32_t flat_n, flat_fail_n; /* flat line repeat counts: -> 3, -> 4 */
 	double flat_eps;              /* flat line tolerance; 0: half the
 	                                 field's scale */
+	/* added for the QC pipeline (cfgderive.c, process.h) */
+	double rate_n_dev;           /* rate of change: N SDs -> 3; 0 off */
+	double rate_window_h;        /* hours of history for that SD */
+	uint32_t gap_s;              /* 0: not given (2 x expect_every_s) */
+	char *mv_with;               /* multi-variate peer value, or NULL */
+	struct tp_qc_value_cfg base; /* resolved, except what depends on
+	                                the layout (sensor span, flat_eps
+	                                default, mv_peer) */
 };
 
 struct cfg_battery {
@@ -84,7 +94,17 @@ struct cfg_battery {
 	double warn_v, cutoff_v; /* 0: no such alert */
 	uint32_t forecast_h;     /* alert when cutoff is forecast within */
 	uint32_t trend_h;        /* window the trend is fitted over */
+	/* added for the watchdog (watch.h documents each choice) */
+	double critical_v;       /* 0: cutoff_v + min(0.5, (warn_v -
+	                            cutoff_v) / 2); needs cutoff_v */
+	uint32_t median_n;       /* readings in the short median */
+	double hysteresis_v;     /* low alerts clear this far above */
+	int fit;                 /* enum cfg_trend_fit */
+	uint32_t trend_min_n;    /* fewer points: no forecast */
+	double flat_v_per_day;   /* a shallower fall: no forecast */
 };
+
+enum cfg_trend_fit { CFG_FIT_THEIL_SEN = 0, CFG_FIT_LEAST_SQUARES };
 
 struct cfg_station {
 	uint32_t number; /* the station role's value */
@@ -100,6 +120,14 @@ struct cfg_station {
 	struct cfg_qc *qc; /* n_qc, in file order */
 	size_t n_qc;
 	struct cfg_battery battery;
+	/* added for the watchdog (watch.h) */
+	uint32_t qc_streak_n;   /* flag 3/4 this often in a row: alert */
+	uint32_t qc_clear_n;    /* good values in a row that clear it */
+	uint32_t clock_limit_s; /* packet time vs received; 0: off */
+	/* added for derived values (cfgderive.c, process.h) */
+	bool derive;                 /* false: no derived values */
+	int pressure_from;           /* enum tp_pres_source */
+	struct tp_derive_cfg derive_cfg; /* resolved; names in the arena */
 };
 
 enum cfg_input_kind {
@@ -185,6 +213,10 @@ struct cfg_alerts {
 	size_t n_to;
 	uint32_t silent_after_s; /* station silent this long -> alert */
 	uint32_t repeat_s;       /* repeat an open alert this often */
+	/* added for the watchdog and alert delivery (watch.h, alert.h) */
+	uint32_t down_after_s;   /* an output failing this long: alert */
+	double backlog_share;    /* ring share of unsent readings: alert */
+	uint32_t exec_per_min;   /* exec target runs per minute, at most */
 };
 
 struct cfg_ring {

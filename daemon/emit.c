@@ -8,11 +8,82 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <time.h>
 
 #include "emit.h"
 
 #define EMIT_MAX_DECIMALS 40
+#define EMIT_FAST_DECIMALS 9  /* emit_fixed_chars handles 0..9 */
+#define EMIT_FORM_F64 (-1)    /* struct emit_col form: shortest */
+#define EMIT_FORM_F32 (-2)    /* struct emit_col form: %.9g */
+
+#if defined(__SIZEOF_INT128__)
+__extension__ typedef unsigned __int128 u128;
+#define EMIT_HAVE_U128 1
+#endif
+
+static const char pairs[] =
+	"00010203040506070809101112131415161718192021222324252627282930313233"
+	"34353637383940414243444546474849505152535455565758596061626364656667"
+	"6869707172737475767778798081828384858687888990919293949596979899";
+
+/* The decimal digits of u, at least min of them (zero-padded on the
+ * left), written backwards so they end just before `end`; the start. */
+static inline char *digits_back(char *end, uint64_t u, int min)
+{
+	char *p = end;
+	unsigned r;
+
+	while (u >= 100) {
+		r = (unsigned)(u % 100);
+		u /= 100;
+		p -= 2;
+		memcpy(p, pairs + 2 * r, 2);
+	}
+	if (u >= 10) {
+		p -= 2;
+		memcpy(p, pairs + 2 * u, 2);
+	} else {
+		*--p = (char)('0' + u);
+	}
+	while (end - p < min)
+		*--p = '0';
+	return p;
+}
+
+/* Decimal digits of u (1..20). */
+static inline int n_digits(uint64_t u)
+{
+	int n = 1;
+
+	while (u >= 10000) {
+		u /= 10000;
+		n += 4;
+	}
+	return n + (u >= 10) + (u >= 100) + (u >= 1000);
+}
+
+/* u in decimal at p (at most 20 bytes, no NUL); returns the end. */
+static inline char *put_u64(char *p, uint64_t u)
+{
+	int n;
+
+	if (u < 10) {
+		*p = (char)('0' + u);
+		return p + 1;
+	}
+	n = n_digits(u);
+	digits_back(p + n, u, 1);
+	return p + n;
+}
+
+/* v in decimal at p (at most 20 bytes, no NUL); returns the end. */
+static char *put_i64(char *p, int64_t v)
+{
+	if (v >= 0)
+		return put_u64(p, (uint64_t)v);
+	*p++ = '-';
+	return put_u64(p, (uint64_t)0 - (uint64_t)v);
+}
 
 bool emit_is_value(const struct tp_field *f)
 {
@@ -35,9 +106,117 @@ static void drop_negative_zero(struct buf *b, size_t start)
 	b->len--;
 }
 
+#ifdef EMIT_HAVE_U128
+/*
+ * |v| * 10^d rounded to an integer the way glibc's printf("%.*f") rounds
+ * in the default rounding mode: to nearest, ties to even, on the exact
+ * binary value (C11 7.21.6.1p8 leaves the rounding to the library; glibc
+ * converts exactly and honours the rounding mode).  v = m * 2^e exactly,
+ * m < 2^53, so m * 10^d < 2^83 fits 128 bits and the rounding is an
+ * exact comparison of the bits shifted out with one half.  The caller
+ * has checked |v| < 10^(18 - d), so the result is at most 10^18.
+ */
+static uint64_t scaled_round(double v, int d)
+{
+	static const uint32_t p10[] = { 1, 10, 100, 1000, 10000, 100000,
+		                        1000000, 10000000, 100000000,
+		                        1000000000 };
+	uint64_t bits, m, q;
+	u128 x, rest, half;
+	int e, k;
+
+	memcpy(&bits, &v, sizeof bits);
+	e = (int)((bits >> 52) & 0x7ff);
+	m = bits & ((UINT64_C(1) << 52) - 1);
+	if (e == 0)
+		e = 1; /* subnormal: no implicit bit */
+	else
+		m |= UINT64_C(1) << 52;
+	e -= 1075;
+	x = (u128)m * p10[d];
+	if (e >= 0)
+		return (uint64_t)(x << e);
+	k = -e;
+	if (k > 100) /* x < 2^83 <= half: rounds to 0 */
+		return 0;
+	q = (uint64_t)(x >> k);
+	rest = x & (((u128)1 << k) - 1);
+	half = (u128)1 << (k - 1);
+	if (rest > half || (rest == half && (q & 1)))
+		q++;
+	return q;
+}
+
+/*
+ * scaled_round, quicker when it can be: y = |v| * 10^d in double is the
+ * exact product rounded once, so for y < 2^32 it is within 2^-22 of it.
+ * Unless y lies within 2^-20 of a half-integer, no half-integer lies
+ * between y and the exact product, so both round to the same integer and
+ * y's fraction (exact: y - floor(y)) decides.  Else the exact path.
+ */
+static inline uint64_t near_round(double v, int d)
+{
+	static const double p10[] = { 1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6,
+		                      1e7, 1e8, 1e9 };
+	double y = fabs(v) * p10[d], fr;
+	uint64_t q;
+
+	if (!(y < 4294967296.0))
+		return scaled_round(v, d);
+	q = (uint64_t)y;
+	fr = y - (double)q;
+	if (fabs(fr - 0.5) <= 0x1p-20)
+		return scaled_round(v, d);
+	return q + (fr > 0.5);
+}
+#endif
+
+#ifdef EMIT_HAVE_U128
+/* emit_fixed_chars (see emit.h).  The digits go to tmp first and are
+ * copied out in fixed-size blocks (hence EMIT_FIXED_MAX of room). */
+static inline size_t fixed_chars(char *out, double v, int d)
+{
+	static const double lim[] = { 1e18, 1e17, 1e16, 1e15, 1e14, 1e13,
+		                      1e12, 1e11, 1e10, 1e9 };
+	char tmp[48], *s, *p = out;
+	uint64_t q;
+	size_t ip;
+
+	if (d < 0 || d > EMIT_FAST_DECIMALS || !(fabs(v) < lim[d]))
+		return 0;
+	q = near_round(v, d);
+	*p = '-'; /* kept only for a value not rounding to 0 (emit.h) */
+	p += q != 0 && signbit(v);
+	s = digits_back(tmp + 24, q, d + 1);
+	ip = (size_t)(tmp + 24 - s) - (size_t)d;
+	memcpy(p, s, 24);
+	p += ip;
+	if (d > 0) {
+		*p = '.';
+		memcpy(p + 1, s + ip, 16);
+		p += 1 + d;
+	}
+	return (size_t)(p - out);
+}
+#else
+static inline size_t fixed_chars(char *out, double v, int d)
+{
+	(void)out;
+	(void)v;
+	(void)d;
+	return 0;
+}
+#endif
+
+size_t emit_fixed_chars(char *out, double v, int decimals)
+{
+	return fixed_chars(out, v, decimals);
+}
+
 void emit_fixed(struct buf *b, double v, int decimals)
 {
-	size_t start = b->len;
+	char tmp[EMIT_FIXED_MAX];
+	size_t start = b->len, n;
 
 	if (!isfinite(v)) {
 		buf_adds(b, "null");
@@ -49,6 +228,11 @@ void emit_fixed(struct buf *b, double v, int decimals)
 	}
 	if (decimals > EMIT_MAX_DECIMALS)
 		decimals = EMIT_MAX_DECIMALS;
+	n = fixed_chars(tmp, v, decimals);
+	if (n > 0) {
+		buf_add(b, tmp, n);
+		return;
+	}
 	buf_printf(b, "%.*f", decimals, v);
 	drop_negative_zero(b, start);
 }
@@ -87,14 +271,30 @@ void emit_shortest(struct buf *b, double v)
 	buf_adds(b, tmp);
 }
 
-void emit_number(struct buf *b, const struct tp_field *f, double v)
+/* A number in one of the forms of struct emit_col. */
+static void emit_form(struct buf *b, int form, double v)
 {
-	if (f->type == TP_T_F32)
+	if (form == EMIT_FORM_F32)
 		emit_float32(b, v);
-	else if (f->type == TP_T_F64)
+	else if (form == EMIT_FORM_F64)
 		emit_shortest(b, v);
 	else
-		emit_fixed(b, v, tp_field_decimals(f));
+		emit_fixed(b, v, form);
+}
+
+/* The form a value field's numbers take. */
+static int field_form(const struct tp_field *f)
+{
+	if (f->type == TP_T_F32)
+		return EMIT_FORM_F32;
+	if (f->type == TP_T_F64)
+		return EMIT_FORM_F64;
+	return tp_field_decimals(f);
+}
+
+void emit_number(struct buf *b, const struct tp_field *f, double v)
+{
+	emit_form(b, field_form(f), v);
 }
 
 /*
@@ -133,6 +333,17 @@ static size_t utf8_len(const unsigned char *s)
 	return n;
 }
 
+/* Bytes of s up to the first that needs escaping or UTF-8 checking
+ * ('"', '\\', controls, DEL, non-ASCII) or the NUL. */
+static size_t plain_prefix(const char *s)
+{
+	const unsigned char *p = (const unsigned char *)s;
+
+	while (*p >= 0x20 && *p < 0x7f && *p != '"' && *p != '\\')
+		p++;
+	return (size_t)(p - (const unsigned char *)s);
+}
+
 /* The characters of s, escaped for a JSON string, without quotes. */
 static void json_chars(struct buf *b, const char *s)
 {
@@ -140,6 +351,12 @@ static void json_chars(struct buf *b, const char *s)
 	size_t n;
 
 	while (*p != '\0') {
+		n = plain_prefix((const char *)p);
+		if (n > 0) {
+			buf_add(b, p, n);
+			p += n;
+			continue;
+		}
 		n = utf8_len(p);
 		if (*p == '"' || *p == '\\') {
 			buf_addc(b, '\\');
@@ -163,23 +380,96 @@ void emit_json_string(struct buf *b, const char *s)
 	buf_addc(b, '"');
 }
 
-void emit_time(struct buf *b, int64_t t)
+/*
+ * Year, month, day of a count of days since 1970-01-01 (proleptic
+ * Gregorian); the algorithm of H. Hinnant, "chrono-Compatible Low-Level
+ * Date Algorithms" (2013), civil_from_days, valid for any day that fits.
+ */
+#define EMIT_DATE_LEN 10
+
+static void civil_from_days(int64_t z, int64_t *y, int *m, int *d)
 {
-	struct tm tm;
-	time_t tt;
+	int64_t era, doe, yoe, doy, mp;
+
+	z += 719468;
+	era = (z >= 0 ? z : z - 146096) / 146097;
+	doe = z - era * 146097;
+	yoe = (doe - doe / 1460 + doe / 36524 - doe / 146096) / 365;
+	doy = doe - (365 * yoe + yoe / 4 - yoe / 100);
+	mp = (5 * doy + 2) / 153;
+	*d = (int)(doy - (153 * mp + 2) / 5 + 1);
+	*m = (int)(mp < 10 ? mp + 3 : mp - 9);
+	*y = yoe + era * 400 + (*m <= 2);
+}
+
+/* Two digits of n (0..99) at p. */
+static inline char *put2(char *p, int n)
+{
+	memcpy(p, pairs + 2 * n, 2);
+	return p + 2;
+}
+
+/* t (clamped, see emit.h) as days since 1970-01-01 and the second of
+ * that day. */
+static int64_t split_time(int64_t t, int *sec)
+{
+	int64_t days;
 
 	if (t < EMIT_TIME_MIN)
 		t = EMIT_TIME_MIN;
 	if (t > EMIT_TIME_MAX)
 		t = EMIT_TIME_MAX;
-	tt = (time_t)t;
-	if (gmtime_r(&tt, &tm) == NULL) {
-		b->err = true;
-		return;
+	days = t / 86400;
+	*sec = (int)(t % 86400);
+	if (*sec < 0) {
+		*sec += 86400;
+		days--;
 	}
-	buf_printf(b, "%04d-%02d-%02dT%02d:%02d:%02dZ", tm.tm_year + 1900,
-	           tm.tm_mon + 1, tm.tm_mday, tm.tm_hour, tm.tm_min,
-	           tm.tm_sec);
+	return days;
+}
+
+/* "YYYY-MM-DD" (EMIT_DATE_LEN bytes) of a day at p; returns the end. */
+static char *put_date(char *p, int64_t days)
+{
+	int64_t y;
+	int mo, d;
+
+	civil_from_days(days, &y, &mo, &d);
+	p = put2(p, (int)(y / 100));
+	p = put2(p, (int)(y % 100));
+	*p++ = '-';
+	p = put2(p, mo);
+	*p++ = '-';
+	return put2(p, d);
+}
+
+/* "THH:MM:SSZ" of a second of the day at p; returns the end. */
+static char *put_clock(char *p, int s)
+{
+	*p++ = 'T';
+	p = put2(p, s / 3600);
+	*p++ = ':';
+	p = put2(p, s / 60 % 60);
+	*p++ = ':';
+	p = put2(p, s % 60);
+	*p++ = 'Z';
+	return p;
+}
+
+/* t as "YYYY-MM-DDTHH:MM:SSZ" at p (EMIT_TIME_LEN bytes, no NUL). */
+static char *put_time(char *p, int64_t t)
+{
+	int s;
+	int64_t days = split_time(t, &s);
+
+	return put_clock(put_date(p, days), s);
+}
+
+void emit_time(struct buf *b, int64_t t)
+{
+	char tmp[EMIT_TIME_LEN];
+
+	buf_add(b, tmp, (size_t)(put_time(tmp, t) - tmp));
 }
 
 /*
@@ -272,26 +562,69 @@ int emit_parse_time(const char *s, int64_t *out)
 	return 0;
 }
 
+/* n bytes of s at p; returns the end. */
+static inline char *put_mem(char *p, const char *s, size_t n)
+{
+	memcpy(p, s, n);
+	return p + n;
+}
+
+#define LIT(s) (s), (sizeof(s) - 1)
+
+/* Bytes "-<time>-<seq>-<record>" may take. */
+#define ID_NUMS_MAX (3 + 20 + 20 + 10)
+
+/* "-<packet time>-<seq>-" at p; returns the end. */
+static char *put_id_prefix(char *p, int64_t packet_time_s, uint64_t seq)
+{
+	*p++ = '-';
+	p = put_i64(p, packet_time_s);
+	*p++ = '-';
+	p = put_u64(p, seq);
+	*p++ = '-';
+	return p;
+}
+
+/* "-<packet time>-<seq>-<record>" at p; returns the end. */
+static char *put_id_numbers(char *p, int64_t packet_time_s, uint64_t seq,
+                            uint32_t record)
+{
+	return put_u64(put_id_prefix(p, packet_time_s, seq), record);
+}
+
+/* The seq of a packet in its id (0 without a seq field). */
+static uint64_t id_seq(const struct tp_packet *pk)
+{
+	return pk->has_seq ? pk->seq : 0;
+}
+
 void emit_id(struct buf *b, const char *station, int64_t packet_time_s,
              uint64_t seq, uint32_t record)
 {
+	char tmp[ID_NUMS_MAX];
+	char *end = put_id_numbers(tmp, packet_time_s, seq, record);
+
 	buf_adds(b, station);
-	buf_printf(b, "-%" PRId64 "-%" PRIu64 "-%" PRIu32, packet_time_s, seq,
-	           record);
+	buf_add(b, tmp, (size_t)(end - tmp));
 }
 
 void emit_reading_id(struct buf *b, const struct emit_reading *er)
 {
 	const struct tp_packet *pk = er->packet;
 
-	emit_id(b, er->station, pk->time_s, pk->has_seq ? pk->seq : 0,
-	        er->reading->record);
+	emit_id(b, er->station, pk->time_s, id_seq(pk), er->reading->record);
 }
 
 /* Is value slot v null?  (flag 9, or no finite number) */
-static bool is_null(const struct tp_value *v)
+static inline bool is_null(const struct tp_value *v)
 {
 	return v->flag == TP_FLAG_MISSING || !isfinite(v->v);
+}
+
+/* The flag written for v: 9 when null. */
+static inline unsigned flag_of(const struct tp_value *v)
+{
+	return is_null(v) ? TP_FLAG_MISSING : (unsigned)v->flag;
 }
 
 /* Value slots the layout describes that this reading holds. */
@@ -302,12 +635,26 @@ static size_t n_slots(const struct emit_reading *er)
 	return er->reading->n_values < n ? er->reading->n_values : n;
 }
 
+/* The JSON member value of slot v in a form of struct emit_col: the
+ * number, null, or (flag) its flag. */
+static void member_value(struct buf *b, int form, const struct tp_value *v,
+                         bool flag)
+{
+	char tmp[20];
+
+	if (flag)
+		buf_add(b, tmp, (size_t)(put_u64(tmp, flag_of(v)) - tmp));
+	else if (is_null(v))
+		buf_add(b, LIT("null"));
+	else
+		emit_form(b, form, v->v);
+}
+
 /* "name":value,... or "name":flag,... over the value slots. */
 static void json_members(struct buf *b, const struct emit_reading *er,
                          bool flags)
 {
 	const struct tp_layout *l = er->packet->layout;
-	const struct tp_value *v;
 	const struct tp_field *f;
 	size_t i, n = n_slots(er);
 	bool first = true;
@@ -316,45 +663,493 @@ static void json_members(struct buf *b, const struct emit_reading *er,
 		f = tp_layout_field(l, i);
 		if (!emit_is_value(f))
 			continue;
-		v = &er->reading->values[i];
 		if (!first)
 			buf_addc(b, ',');
 		first = false;
 		emit_json_string(b, f->name);
 		buf_addc(b, ':');
-		if (flags)
-			buf_printf(b, "%u", is_null(v) ? TP_FLAG_MISSING
-			                               : (unsigned)v->flag);
-		else if (is_null(v))
-			buf_adds(b, "null");
-		else
-			emit_number(b, f, v->v);
+		member_value(b, flags ? 0 : field_form(f),
+		             &er->reading->values[i], flags);
 	}
+}
+
+/*
+ * A JSON line is head_a, the record number, head_b, the reading time,
+ * head_c, the value members, "},\"flags\":{", the flag members, "}}\n".
+ * Only the record number, the reading time and the record fields' members
+ * change between the records of one packet (the packet cache below).
+ */
+
+/* {"id":"<station>-<packet time>-<seq>- */
+static void head_a(struct buf *b, const struct emit_reading *er)
+{
+	const struct tp_packet *pk = er->packet;
+	char tmp[ID_NUMS_MAX];
+
+	buf_add(b, LIT("{\"id\":\""));
+	json_chars(b, er->station);
+	buf_add(b, tmp, (size_t)(put_id_prefix(tmp, pk->time_s, id_seq(pk)) -
+	                         tmp));
+}
+
+/* ","station":"..","seq":..,"layout":"..","time":" -- lname is the layout
+ * name as a JSON string (lname_len bytes), or NULL to write it here. */
+static void head_b(struct buf *b, const struct emit_reading *er,
+                   const char *lname, size_t lname_len)
+{
+	const struct tp_packet *pk = er->packet;
+	char tmp[64], *p;
+
+	buf_add(b, LIT("\",\"station\":"));
+	emit_json_string(b, er->station);
+	p = put_mem(tmp, LIT(",\"seq\":"));
+	if (pk->has_seq)
+		p = put_u64(p, pk->seq);
+	else
+		p = put_mem(p, LIT("null"));
+	p = put_mem(p, LIT(",\"layout\":"));
+	buf_add(b, tmp, (size_t)(p - tmp));
+	if (lname != NULL)
+		buf_add(b, lname, lname_len);
+	else
+		emit_json_string(b, pk->layout->name);
+	buf_add(b, LIT(",\"time\":\""));
+}
+
+/* ","received":"..","values":{ */
+static void head_c(struct buf *b, const struct emit_reading *er)
+{
+	char tmp[EMIT_TIME_LEN + 32], *p;
+
+	p = put_mem(tmp, LIT("\",\"received\":\""));
+	p = put_time(p, er->received_s);
+	p = put_mem(p, LIT("\",\"values\":{"));
+	buf_add(b, tmp, (size_t)(p - tmp));
+}
+
+/* t as put_time writes it, the date taken from *day / date (a cache of
+ * the last day written, updated here). */
+static char *put_time_cached(char *p, int64_t t, int64_t *day, char *date)
+{
+	int s;
+	int64_t days = split_time(t, &s);
+
+	if (days != *day) {
+		put_date(date, days);
+		*day = days;
+	}
+	memcpy(p, date, EMIT_DATE_LEN);
+	return put_clock(p + EMIT_DATE_LEN, s);
+}
+
+/* The record number and the reading time, with hb (head_b) between
+ * them; day / date as for put_time_cached. */
+static void head_record(struct buf *b, const struct emit_reading *er,
+                        const char *hb, size_t hb_len, int64_t *day,
+                        char *date)
+{
+	char *p = buf_room(b, 10 + hb_len + EMIT_TIME_LEN), tmp[20];
+
+	if (p == NULL) {
+		buf_add(b, tmp, (size_t)(put_u64(tmp, er->reading->record) -
+		                         tmp));
+		buf_add(b, hb, hb_len);
+		emit_time(b, er->reading->time_s);
+		return;
+	}
+	p = put_u64(p, er->reading->record);
+	p = put_mem(p, hb, hb_len);
+	buf_commit(b, put_time_cached(p, er->reading->time_s, day, date));
 }
 
 void emit_json(struct buf *b, const struct emit_reading *er)
 {
-	const struct tp_packet *pk = er->packet;
+	char tmp[20];
 
-	buf_adds(b, "{\"id\":\"");
-	json_chars(b, er->station);
-	buf_printf(b, "-%" PRId64 "-%" PRIu64 "-%" PRIu32 "\",\"station\":",
-	           pk->time_s, pk->has_seq ? pk->seq : 0, er->reading->record);
-	emit_json_string(b, er->station);
-	if (pk->has_seq)
-		buf_printf(b, ",\"seq\":%" PRIu64 ",\"layout\":", pk->seq);
-	else
-		buf_adds(b, ",\"seq\":null,\"layout\":");
-	emit_json_string(b, pk->layout->name);
-	buf_adds(b, ",\"time\":\"");
+	head_a(b, er);
+	buf_add(b, tmp, (size_t)(put_u64(tmp, er->reading->record) - tmp));
+	head_b(b, er, NULL, 0);
 	emit_time(b, er->reading->time_s);
-	buf_adds(b, "\",\"received\":\"");
-	emit_time(b, er->received_s);
-	buf_adds(b, "\",\"values\":{");
+	head_c(b, er);
 	json_members(b, er, false);
-	buf_adds(b, "},\"flags\":{");
+	buf_add(b, LIT("},\"flags\":{"));
 	json_members(b, er, true);
-	buf_adds(b, "}}\n");
+	buf_add(b, LIT("}}\n"));
+}
+
+/* ---- per-layout plans ------------------------------------------------- */
+
+/* Slack after the plan's text, so keys may be copied in 16-byte blocks. */
+#define PLAN_SLACK 16
+
+/* Build the plan of layout l.  0, or -1 when out of memory. */
+static int plan_build(struct emit_plan *pl, const struct tp_layout *l)
+{
+	size_t i, n = tp_layout_n_values(l);
+	const struct tp_field *f;
+	struct emit_col *c;
+	struct buf t;
+
+	memset(pl, 0, sizeof(*pl));
+	pl->layout = l;
+	pl->cols = calloc(n ? n : 1, sizeof(*pl->cols));
+	if (pl->cols == NULL)
+		return -1;
+	buf_init(&t, SIZE_MAX / 4);
+	emit_json_string(&t, l->name != NULL ? l->name : "");
+	pl->name_len = t.len;
+	for (i = 0; i < n; i++) {
+		f = tp_layout_field(l, i);
+		if (!emit_is_value(f))
+			continue;
+		c = &pl->cols[pl->n_cols++];
+		c->slot = i;
+		c->form = field_form(f);
+		c->key = t.len;
+		buf_addc(&t, ',');
+		emit_json_string(&t, f->name);
+		buf_addc(&t, ':');
+		c->key_len = t.len - c->key;
+		pl->n_head_cols += i < l->n_fields;
+		pl->room += c->key_len + 16 + EMIT_FIXED_MAX;
+	}
+	for (i = 0; i < PLAN_SLACK; i++)
+		buf_addc(&t, '\0');
+	pl->text = t.data;
+	if (!buf_failed(&t))
+		return 0;
+	buf_free(&t);
+	pl->text = NULL;
+	return -1;
+}
+
+/*
+ * The packet cache: the pieces of text that every record of one packet
+ * shares (emit_json_planned: head_a, head_b, head_c with the header
+ * members, the flags opening with the header flags; emit_csv_row: the id
+ * prefix, the station cell, the seq cell and the leading columns that do
+ * not change within the packet).  It is keyed by everything those pieces
+ * are made from -- layout, station text, packet time, seq, received time,
+ * the number of slots, and the header values bit for bit -- so a hit
+ * writes exactly what building the pieces again would write.
+ */
+#define PCACHE_STATION 128         /* longer station names: no cache */
+#define PCACHE_TEXT (256 * 1024)   /* longer pieces: no cache */
+
+struct emit_pcache {
+	const struct tp_layout *layout; /* NULL: nothing cached */
+	int64_t time_s, received_s;
+	uint64_t seq;
+	bool has_seq;
+	bool any_head;          /* JSON: a header member was written */
+	size_t ns;              /* n_slots of the reading */
+	size_t run;             /* CSV: leading columns in the pieces */
+	struct tp_value head[TP_MAX_FIELDS];
+	char station[PCACHE_STATION];
+	struct buf text;
+	size_t cut[5];          /* piece i is text[cut[i] .. cut[i + 1]) */
+	int64_t day;            /* date[] is this day's (INT64_MIN: none) */
+	char date[EMIT_DATE_LEN];
+};
+
+static struct emit_pcache *pcache_new(void)
+{
+	struct emit_pcache *pc = calloc(1, sizeof(*pc));
+
+	if (pc != NULL) {
+		buf_init(&pc->text, PCACHE_TEXT);
+		pc->day = INT64_MIN;
+	}
+	return pc;
+}
+
+static void pcache_free(struct emit_pcache *pc)
+{
+	if (pc == NULL)
+		return;
+	buf_free(&pc->text);
+	free(pc);
+}
+
+/* Header slots of the reading: those before the records that it holds. */
+static size_t head_slots(const struct emit_reading *er, size_t ns)
+{
+	size_t nf = er->packet->layout->n_fields;
+
+	return ns < nf ? ns : nf;
+}
+
+static bool same_value(const struct tp_value *a, const struct tp_value *b)
+{
+	return memcmp(&a->v, &b->v, sizeof(a->v)) == 0 && a->flag == b->flag;
+}
+
+/* Was the cache made from this reading's packet? */
+static bool pcache_hit(const struct emit_pcache *pc,
+                       const struct emit_reading *er, size_t ns)
+{
+	const struct tp_packet *pk = er->packet;
+	size_t i, nh = head_slots(er, ns);
+
+	if (pc == NULL || pc->layout != pk->layout || pc->ns != ns ||
+	    pc->time_s != pk->time_s || pc->received_s != er->received_s ||
+	    pc->has_seq != pk->has_seq || pc->seq != pk->seq)
+		return false;
+	for (i = 0; i < nh; i++) {
+		if (!same_value(&pc->head[i], &er->reading->values[i]))
+			return false;
+	}
+	return strcmp(pc->station, er->station) == 0;
+}
+
+/* Start new pieces for this reading's packet; false if it cannot be
+ * cached (no cache, or a station name too long). */
+static bool pcache_start(struct emit_pcache *pc, const struct emit_reading *er,
+                         size_t ns)
+{
+	const struct tp_packet *pk = er->packet;
+	size_t n = strlen(er->station);
+
+	if (pc == NULL)
+		return false;
+	pc->layout = NULL;
+	if (n >= sizeof(pc->station))
+		return false;
+	memcpy(pc->station, er->station, n + 1);
+	memcpy(pc->head, er->reading->values,
+	       head_slots(er, ns) * sizeof(pc->head[0]));
+	pc->time_s = pk->time_s;
+	pc->received_s = er->received_s;
+	pc->has_seq = pk->has_seq;
+	pc->seq = pk->seq;
+	pc->ns = ns;
+	buf_reset(&pc->text);
+	pc->cut[0] = 0;
+	return true;
+}
+
+/* End piece i (1..4); on the last, the pieces become valid if they all
+ * fit. */
+static void pcache_cut(struct emit_pcache *pc, int i, bool last,
+                       const struct tp_layout *l)
+{
+	pc->cut[i] = pc->text.len;
+	if (last && !buf_failed(&pc->text))
+		pc->layout = l;
+}
+
+/* Piece i of the cache. */
+static const char *piece(const struct emit_pcache *pc, int i, size_t *len)
+{
+	*len = pc->cut[i + 1] - pc->cut[i];
+	return pc->text.data + pc->cut[i];
+}
+
+int emit_plans_init(struct emit_plans *ps, const struct tp_layout *const *ls,
+                    size_t n)
+{
+	size_t i;
+
+	memset(ps, 0, sizeof(*ps));
+	ps->plan = calloc(n ? n : 1, sizeof(*ps->plan));
+	ps->pc = pcache_new();
+	if (ps->plan == NULL || ps->pc == NULL)
+		goto out_free;
+	for (i = 0; i < n; i++) {
+		ps->n = i + 1;
+		if (plan_build(&ps->plan[i], ls[i]) < 0)
+			goto out_free;
+	}
+	return 0;
+out_free:
+	emit_plans_free(ps);
+	errno = ENOMEM;
+	return -1;
+}
+
+void emit_plans_free(struct emit_plans *ps)
+{
+	size_t i;
+
+	if (ps == NULL)
+		return;
+	for (i = 0; ps->plan != NULL && i < ps->n; i++) {
+		free(ps->plan[i].cols);
+		free(ps->plan[i].text);
+	}
+	free(ps->plan);
+	pcache_free(ps->pc);
+	ps->plan = NULL;
+	ps->pc = NULL;
+	ps->n = 0;
+}
+
+/* The plan for layout l, or NULL. */
+static const struct emit_plan *plan_for(const struct emit_plans *ps,
+                                        const struct tp_layout *l)
+{
+	size_t i;
+
+	for (i = 0; ps != NULL && i < ps->n; i++) {
+		if (ps->plan[i].layout == l)
+			return &ps->plan[i];
+	}
+	return NULL;
+}
+
+/* n bytes from s to p in 16-byte blocks: reads up to 15 bytes past s + n
+ * (PLAN_SLACK) and writes up to 15 past p + n (room the caller has). */
+static inline char *put_blocks(char *p, const char *s, size_t n)
+{
+	size_t i;
+
+	for (i = 0; i < n; i += 16)
+		memcpy(p + i, s + i, 16);
+	return p + n;
+}
+
+/* One member: key (with its comma, or without for the first) and the
+ * value or flag of slot v, through ordinary appends. */
+static void plan_member(struct buf *b, const char *key, size_t key_len,
+                        int form, const struct tp_value *v, bool flag)
+{
+	buf_add(b, key, key_len);
+	member_value(b, form, v, flag);
+}
+
+/* The same member written at p, which has room for key_len + 16 +
+ * EMIT_FIXED_MAX bytes; returns the end, or NULL when the number needs
+ * the slow form (then what was written at p is not used). */
+static inline char *member_at(char *p, const char *key, size_t key_len, int form,
+                       const struct tp_value *v, bool flag)
+{
+	size_t n;
+
+	p = put_blocks(p, key, key_len);
+	if (flag)
+		return put_u64(p, flag_of(v));
+	if (is_null(v))
+		return put_mem(p, LIT("null"));
+	n = fixed_chars(p, v->v, form);
+	return n > 0 ? p + n : NULL;
+}
+
+/* Members of columns [from, to) whose slot is below n; the first one
+ * written loses its comma when *first.  Clears *first if any is written.
+ * Written in place under one buf_room when there is room (pl->room). */
+static void plan_members(struct buf *b, const struct emit_plan *pl,
+                         const struct emit_reading *er, size_t from,
+                         size_t to, size_t n, bool flags, bool *first)
+{
+	const struct emit_col *c;
+	const struct tp_value *v;
+	size_t i, skip = *first ? 1 : 0;
+	char *p = buf_room(b, pl->room), *q;
+
+	for (i = from; i < to && pl->cols[i].slot < n; i++) {
+		c = &pl->cols[i]; /* columns are in slot order */
+		v = &er->reading->values[c->slot];
+		q = p == NULL ? NULL :
+		    member_at(p, pl->text + c->key + skip, c->key_len - skip,
+		              c->form, v, flags);
+		if (q == NULL) {
+			if (p != NULL)
+				buf_commit(b, p);
+			plan_member(b, pl->text + c->key + skip,
+			            c->key_len - skip, c->form, v, flags);
+			q = buf_room(b, pl->room);
+		}
+		p = q;
+		skip = 0;
+		*first = false;
+	}
+	if (p != NULL)
+		buf_commit(b, p);
+}
+
+/* The JSON pieces of this reading's packet (see pcache above). */
+static void pcache_json(struct emit_pcache *pc, const struct emit_plan *pl,
+                        const struct emit_reading *er, size_t ns)
+{
+	struct buf *t = &pc->text;
+	size_t nh = head_slots(er, ns);
+	bool first = true;
+
+	head_a(t, er);
+	pcache_cut(pc, 1, false, NULL);
+	head_b(t, er, pl->text, pl->name_len);
+	pcache_cut(pc, 2, false, NULL);
+	head_c(t, er);
+	plan_members(t, pl, er, 0, pl->n_head_cols, nh, false, &first);
+	pcache_cut(pc, 3, false, NULL);
+	first = true;
+	buf_add(t, LIT("},\"flags\":{"));
+	plan_members(t, pl, er, 0, pl->n_head_cols, nh, true, &first);
+	pc->any_head = !first;
+	pcache_cut(pc, 4, true, pl->layout);
+}
+
+/* emit_json_planned from the cached pieces. */
+static void json_cached(struct buf *b, const struct emit_plan *pl,
+                        struct emit_pcache *pc,
+                        const struct emit_reading *er, size_t ns)
+{
+	const char *s;
+	size_t n, hb_len;
+	const char *hb = piece(pc, 1, &hb_len);
+	bool first = !pc->any_head;
+
+	s = piece(pc, 0, &n);
+	buf_add(b, s, n);
+	head_record(b, er, hb, hb_len, &pc->day, pc->date);
+	s = piece(pc, 2, &n);
+	buf_add(b, s, n);
+	plan_members(b, pl, er, pl->n_head_cols, pl->n_cols, ns, false,
+	             &first);
+	s = piece(pc, 3, &n);
+	buf_add(b, s, n);
+	first = !pc->any_head;
+	plan_members(b, pl, er, pl->n_head_cols, pl->n_cols, ns, true,
+	             &first);
+	buf_add(b, LIT("}}\n"));
+}
+
+/* emit_json_planned without the cache. */
+static void json_uncached(struct buf *b, const struct emit_plan *pl,
+                          const struct emit_reading *er, size_t ns)
+{
+	bool first = true;
+	char tmp[20];
+
+	head_a(b, er);
+	buf_add(b, tmp, (size_t)(put_u64(tmp, er->reading->record) - tmp));
+	head_b(b, er, pl->text, pl->name_len);
+	emit_time(b, er->reading->time_s);
+	head_c(b, er);
+	plan_members(b, pl, er, 0, pl->n_cols, ns, false, &first);
+	buf_add(b, LIT("},\"flags\":{"));
+	first = true;
+	plan_members(b, pl, er, 0, pl->n_cols, ns, true, &first);
+	buf_add(b, LIT("}}\n"));
+}
+
+void emit_json_planned(struct buf *b, const struct emit_plans *ps,
+                       const struct emit_reading *er)
+{
+	const struct emit_plan *pl = plan_for(ps, er->packet->layout);
+	size_t ns;
+
+	if (pl == NULL) {
+		emit_json(b, er);
+		return;
+	}
+	ns = n_slots(er);
+	if (!pcache_hit(ps->pc, er, ns) && pcache_start(ps->pc, er, ns))
+		pcache_json(ps->pc, pl, er, ns);
+	if (ps->pc != NULL && ps->pc->layout == pl->layout)
+		json_cached(b, pl, ps->pc, er, ns);
+	else
+		json_uncached(b, pl, er, ns);
 }
 
 /* Quote the cell written since `start` if it needs it (RFC 4180). */
@@ -367,8 +1162,8 @@ static void csv_quote_from(struct buf *b, size_t start)
 		return;
 	for (i = start; i < b->len; i++) {
 		q += b->data[i] == '"';
-		need |= b->data[i] != '\0' &&
-		        strchr("\",\r\n", b->data[i]) != NULL;
+		need |= b->data[i] == '"' || b->data[i] == ',' ||
+		        b->data[i] == '\r' || b->data[i] == '\n';
 	}
 	if (!need)
 		return;
@@ -427,18 +1222,23 @@ static void csv_map_layout(struct emit_csv *c, size_t li)
 	const struct tp_layout *l = c->layouts[li];
 	const struct tp_field *f;
 	int *row = c->slot + li * c->n_names;
+	int *form = c->form + li * c->n_names;
 	size_t i, n = tp_layout_n_values(l);
 	int col;
 
-	for (i = 0; i < c->n_names; i++)
+	for (i = 0; i < c->n_names; i++) {
 		row[i] = -1;
+		form[i] = 0;
+	}
 	for (i = 0; i < n; i++) {
 		f = tp_layout_field(l, i);
 		if (!emit_is_value(f))
 			continue;
 		col = csv_find(c, f->name);
-		if (col >= 0 && row[col] < 0)
+		if (col >= 0 && row[col] < 0) {
 			row[col] = (int)i;
+			form[col] = field_form(f);
+		}
 	}
 }
 
@@ -458,9 +1258,10 @@ int emit_csv_init(struct emit_csv *c, const struct tp_layout *const *ls,
 	for (i = 0; i < n; i++)
 		csv_add_names(c, ls[i]);
 	c->slot = calloc(n * c->n_names + 1, sizeof(*c->slot));
-	if (c->slot == NULL) {
-		free(c->names);
-		c->names = NULL;
+	c->form = calloc(n * c->n_names + 1, sizeof(*c->form));
+	c->pc = pcache_new();
+	if (c->slot == NULL || c->form == NULL || c->pc == NULL) {
+		emit_csv_free(c);
 		errno = ENOMEM;
 		return -1;
 	}
@@ -475,8 +1276,12 @@ void emit_csv_free(struct emit_csv *c)
 		return;
 	free(c->names);
 	free(c->slot);
+	free(c->form);
+	pcache_free(c->pc);
+	c->pc = NULL;
 	c->names = NULL;
 	c->slot = NULL;
+	c->form = NULL;
 	c->n_names = 0;
 }
 
@@ -497,39 +1302,123 @@ void emit_csv_header(struct buf *b, const struct emit_csv *c)
 	buf_adds(b, "\r\n");
 }
 
-/* ",value,flag" for one column (empty cells when absent or null). */
-static void csv_value(struct buf *b, const struct emit_reading *er, int slot)
+/* ",value,flag" for one column (empty cells when absent or null);
+ * n is n_slots(er), form the column's number form. */
+static void csv_value(struct buf *b, const struct emit_reading *er,
+                      size_t n, int slot, int form)
 {
 	const struct tp_value *v;
+	char *p;
+	size_t k;
 
-	buf_addc(b, ',');
-	if (slot < 0 || (size_t)slot >= n_slots(er)) {
-		buf_addc(b, ',');
+	if (slot < 0 || (size_t)slot >= n) {
+		buf_add(b, LIT(",,"));
 		return;
 	}
 	v = &er->reading->values[slot];
 	if (is_null(v)) {
-		buf_printf(b, ",%u", TP_FLAG_MISSING);
+		buf_add(b, LIT(",,9"));
 		return;
 	}
-	emit_number(b, tp_layout_field(er->packet->layout, (size_t)slot),
-	            v->v);
-	buf_printf(b, ",%u", (unsigned)v->flag);
+	p = buf_room(b, EMIT_FIXED_MAX + 24);
+	k = p != NULL ? fixed_chars(p + 1, v->v, form) : 0;
+	if (k > 0) {
+		p[0] = ',';
+		p += 1 + k;
+		*p++ = ',';
+		buf_commit(b, put_u64(p, v->flag));
+		return;
+	}
+	buf_addc(b, ',');
+	emit_form(b, form, v->v);
+	buf_addc(b, ',');
+	member_value(b, 0, v, true);
 }
 
-void emit_csv_row(struct buf *b, const struct emit_csv *c,
-                  const struct emit_reading *er)
+/* Index of layout l in the table, or n_layouts. */
+static size_t csv_layout_index(const struct emit_csv *c,
+                               const struct tp_layout *l)
 {
-	const struct tp_packet *pk = er->packet;
-	size_t li, i, start = b->len;
+	size_t li;
 
 	for (li = 0; li < c->n_layouts; li++) {
-		if (c->layouts[li] == pk->layout)
+		if (c->layouts[li] == l)
 			break;
 	}
-	if (li == c->n_layouts) {
-		b->err = true;
-		return;
+	return li;
+}
+
+/* Does s hold a byte that makes a CSV cell need quotes? */
+static bool csv_special(const char *s)
+{
+	for (; *s != '\0'; s++) {
+		if (*s == '"' || *s == ',' || *s == '\r' || *s == '\n')
+			return true;
+	}
+	return false;
+}
+
+/* Is column i of layout li the same for every record of the packet
+ * (absent, a header slot, or past the slots the reading holds)? */
+static bool csv_constant(const struct emit_csv *c, size_t li, size_t i,
+                         const struct emit_reading *er, size_t ns)
+{
+	int slot = c->slot[li * c->n_names + i];
+
+	return slot < 0 || (size_t)slot < er->packet->layout->n_fields ||
+	       (size_t)slot >= ns;
+}
+
+/* The CSV pieces of this reading's packet (see pcache above): the id up
+ * to the record number, the station cell, then the seq cell and the
+ * leading constant columns.  The station must need no quotes. */
+static void pcache_csv(struct emit_pcache *pc, const struct emit_csv *c,
+                       size_t li, const struct emit_reading *er, size_t ns)
+{
+	const struct tp_packet *pk = er->packet;
+	struct buf *t = &pc->text;
+	char tmp[ID_NUMS_MAX];
+	size_t i;
+
+	buf_adds(t, er->station);
+	buf_add(t, tmp, (size_t)(put_id_prefix(tmp, pk->time_s, id_seq(pk)) -
+	                         tmp));
+	pcache_cut(pc, 1, false, NULL);
+	buf_addc(t, ',');
+	buf_adds(t, er->station);
+	buf_addc(t, ',');
+	pcache_cut(pc, 2, false, NULL);
+	buf_addc(t, ',');
+	if (pk->has_seq)
+		buf_add(t, tmp, (size_t)(put_u64(tmp, pk->seq) - tmp));
+	for (i = 0; i < c->n_names && csv_constant(c, li, i, er, ns); i++)
+		csv_value(t, er, ns, c->slot[li * c->n_names + i],
+		          c->form[li * c->n_names + i]);
+	pc->run = i;
+	pcache_cut(pc, 3, true, pk->layout);
+}
+
+/* id, station, time and seq cells, through the packet cache when it
+ * can; returns the first column still to write. */
+static size_t csv_head(struct buf *b, const struct emit_csv *c, size_t li,
+                       const struct emit_reading *er, size_t ns)
+{
+	const struct tp_packet *pk = er->packet;
+	struct emit_pcache *pc = c->pc;
+	size_t start = b->len, n, hb_len;
+	const char *s, *hb;
+
+	if (!pcache_hit(pc, er, ns) && !csv_special(er->station) &&
+	    pcache_start(pc, er, ns))
+		pcache_csv(pc, c, li, er, ns);
+	if (pc != NULL && pc->layout == pk->layout) {
+		s = piece(pc, 0, &n);
+		buf_add(b, s, n);
+		hb = piece(pc, 1, &hb_len);
+		head_record(b, er, hb, hb_len, &pc->day, pc->date);
+		s = piece(pc, 2, &n);
+		buf_add(b, s, n);
+		return pc->run;
 	}
 	emit_reading_id(b, er);
 	csv_quote_from(b, start);
@@ -540,7 +1429,22 @@ void emit_csv_row(struct buf *b, const struct emit_csv *c,
 	buf_addc(b, ',');
 	if (pk->has_seq)
 		buf_printf(b, "%" PRIu64, pk->seq);
-	for (i = 0; i < c->n_names; i++)
-		csv_value(b, er, c->slot[li * c->n_names + i]);
-	buf_adds(b, "\r\n");
+	return 0;
+}
+
+void emit_csv_row(struct buf *b, const struct emit_csv *c,
+                  const struct emit_reading *er)
+{
+	size_t li, i, ns;
+
+	li = csv_layout_index(c, er->packet->layout);
+	if (li == c->n_layouts) {
+		b->err = true;
+		return;
+	}
+	ns = n_slots(er);
+	for (i = csv_head(b, c, li, er, ns); i < c->n_names; i++)
+		csv_value(b, er, ns, c->slot[li * c->n_names + i],
+		          c->form[li * c->n_names + i]);
+	buf_add(b, LIT("\r\n"));
 }

@@ -50,6 +50,13 @@
 /* Room for a station number, time and seq in text ("%" PRIu64 ...). */
 #define EMIT_NUM_MAX 24
 
+/* Bytes of a time as emit_time writes it ("YYYY-MM-DDTHH:MM:SSZ"). */
+#define EMIT_TIME_LEN 20
+
+/* Room emit_fixed_chars needs at out: it writes at most 21 characters
+ * (sign, 19 digits, point) but copies in blocks past them. */
+#define EMIT_FIXED_MAX 40
+
 /* One reading and what it came from; nothing is owned. */
 struct emit_reading {
 	const char *station;            /* config name, or the number as text */
@@ -66,6 +73,17 @@ void emit_number(struct buf *b, const struct tp_field *f, double v);
 
 /* The three number forms emit_number chooses between. */
 void emit_fixed(struct buf *b, double v, int decimals);
+
+/*
+ * The fast, exact form of emit_fixed: the text of "%.*f" (decimals 0..9)
+ * for |v| < 10^(18 - decimals), without the minus sign of a value that
+ * rounds to zero, written at out (EMIT_FIXED_MAX bytes, no NUL).  Rounds
+ * like glibc's printf in the default rounding mode: the exact binary
+ * value to nearest, ties to even.  Returns the length, or 0 when it does
+ * not apply (other decimals, |v| too large, NaN, or no 128-bit integers
+ * on this compiler): emit_fixed then uses snprintf.
+ */
+size_t emit_fixed_chars(char *out, double v, int decimals);
 void emit_float32(struct buf *b, double v);
 void emit_shortest(struct buf *b, double v);
 
@@ -93,6 +111,51 @@ void emit_reading_id(struct buf *b, const struct emit_reading *er);
 /* The reading as one JSON object line, '\n' included. */
 void emit_json(struct buf *b, const struct emit_reading *er);
 
+/*
+ * Per-layout plans: what every reading of a layout prints the same way,
+ * worked out once (which slots are values, each one's number form, its
+ * JSON key with the escaping done, the layout name as a JSON string).
+ * emit_json_planned writes exactly what emit_json writes, faster.
+ * A plan borrows its layout: the layout must not change while the plans
+ * live.  Owned by the caller: emit_plans_init allocates, emit_plans_free
+ * releases.
+ */
+struct emit_col {
+	size_t slot;            /* value slot */
+	int form;               /* decimals 0..9, or -1 f64, -2 f32 */
+	size_t key, key_len;    /* `,"name":` at text + key */
+};
+
+struct emit_plan {
+	const struct tp_layout *layout; /* not owned */
+	struct emit_col *cols;  /* value slots in slot order */
+	size_t n_cols;
+	size_t n_head_cols;     /* the first ones, header fields */
+	size_t room;            /* bytes all members may take in place */
+	char *text;             /* layout name as JSON string, then keys */
+	size_t name_len;
+};
+
+struct emit_pcache;             /* private to emit.c */
+
+struct emit_plans {
+	struct emit_plan *plan;
+	size_t n;
+	struct emit_pcache *pc; /* what the last packet's records share */
+};
+
+/* Plans for n layouts.  Returns 0, or -1 (out of memory, errno set). */
+int emit_plans_init(struct emit_plans *ps, const struct tp_layout *const *ls,
+                    size_t n) __attribute__((warn_unused_result));
+
+/* Release the plans; NULL is fine. */
+void emit_plans_free(struct emit_plans *ps);
+
+/* emit_json through the plan of er's layout (emit_json itself when ps
+ * has none for it). */
+void emit_json_planned(struct buf *b, const struct emit_plans *ps,
+                       const struct emit_reading *er);
+
 /* One CSV cell, quoted when needed (no separator). */
 void emit_csv_cell(struct buf *b, const char *s, size_t n);
 
@@ -108,6 +171,8 @@ struct emit_csv {
 	const char **names;    /* n_names value names (borrowed strings) */
 	size_t n_names;
 	int *slot;             /* [layout * n_names + column]: slot or -1 */
+	int *form;             /* same index: number form (struct emit_col) */
+	struct emit_pcache *pc; /* what the last packet's rows share */
 };
 
 /* Build the table.  Returns 0, or -1 (out of memory, errno set). */

@@ -14,6 +14,8 @@
 #ifndef TIDEPOST_LOG_H
 #define TIDEPOST_LOG_H
 
+#include <stdbool.h>
+
 enum log_level {
 	LOG_LVL_ERR = 0,  /* something failed; an action was not done */
 	LOG_LVL_WARN,     /* something is wrong but work goes on */
@@ -22,6 +24,23 @@ enum log_level {
 
 /* Keep lines of level <= lvl (default LOG_LVL_INFO). */
 void log_set_level(enum log_level lvl);
+
+/*
+ * Where lines go (added for the daemon; the default is stderr without
+ * prefixes, as for every command).  LOG_SINK_SYSLOG sends each line to
+ * syslog(3) with `ident` (LOG_PID, facility LOG_DAEMON; ERR -> LOG_ERR,
+ * WARN -> LOG_WARNING, INFO -> LOG_INFO).  With `prefix` on, stderr lines
+ * start with the syslog priority in angle brackets ("<3>", "<4>", "<6>"),
+ * which journald and other service managers read as the line's level.
+ */
+enum log_sink { LOG_SINK_STDERR = 0, LOG_SINK_SYSLOG };
+
+void log_set_sink(enum log_sink sink, const char *ident);
+void log_set_prefix(bool prefix);
+
+/* Is a service manager collecting our stderr (JOURNAL_STREAM or
+ * INVOCATION_ID in the environment)? */
+bool log_under_service_manager(void);
 
 void log_err(const char *fmt, ...) __attribute__((format(printf, 1, 2)));
 void log_warn(const char *fmt, ...) __attribute__((format(printf, 1, 2)));

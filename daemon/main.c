@@ -8,6 +8,7 @@
 #include <string.h>
 
 #include "cli.h"
+#include "cli_run.h"
 #include "log.h"
 
 struct command {
@@ -18,20 +19,21 @@ struct command {
 };
 
 static const struct command commands[] = {
-	{ "run", NULL, "the daemon: inputs -> ring file -> outputs, alerts",
-	  "usage: tidepost run -c CONFIG [--foreground] [--once]\n" },
+	{ "run", cmd_run, "the daemon: inputs -> ring file -> outputs, alerts",
+	  cmd_run_usage },
 	{ "decode", cmd_decode,
 	  "archived packets -> readings (NDJSON or CSV) on stdout",
 	  cmd_decode_usage },
 	{ "encode", cmd_encode,
 	  "readings (CSV) -> framed packets of a layout on stdout",
 	  cmd_encode_usage },
-	{ "replay", NULL, "put archived packets into the ring for delivery",
-	  "usage: tidepost replay -c CONFIG PACKETS...\n" },
-	{ "status", NULL, "what the running daemon knows: stations, outputs",
-	  "usage: tidepost status -c CONFIG\n" },
-	{ "ring", NULL, "inspect or verify the ring file",
-	  "usage: tidepost ring -c CONFIG\n" },
+	{ "replay", cmd_replay, "put archived packets into the ring for delivery",
+	  cmd_replay_usage },
+	{ "status", cmd_status,
+	  "what the running daemon knows: stations, outputs, alerts",
+	  cmd_status_usage },
+	{ "ring", cmd_ring, "inspect or verify the ring file",
+	  cmd_ring_usage },
 	{ "check", cmd_check, "validate a config and its layouts",
 	  cmd_check_usage },
 };

@@ -13,6 +13,7 @@
 #include <string.h>
 #include <strings.h>
 
+#include "cfgderive.h"
 #include "cfgload.h"
 
 #define NOLIM      1e300 /* "no bound" for NUM ranges */
@@ -26,6 +27,7 @@ _Static_assert(sizeof(enum cfg_format) == sizeof(int), "enum size");
 _Static_assert(sizeof(enum cfg_parity) == sizeof(int), "enum size");
 _Static_assert(sizeof(enum cfg_flow) == sizeof(int), "enum size");
 _Static_assert(sizeof(enum cfg_alert_kind) == sizeof(int), "enum size");
+_Static_assert(sizeof(enum cfg_trend_fit) == sizeof(int), "enum size");
 
 /* Rows, one macro per type: name, where it is stored, flags, kinds,
  * default (number, then as documented), range, description. */
@@ -94,6 +96,13 @@ static const char *const w_flow[] = {"none", "rtscts", "xonxoff", NULL};
 static const char *const w_out[] = {"http", "file", NULL};
 static const char *const w_format[] = {"batch", "ndjson", "single", NULL};
 static const char *const w_alert[] = {"http", "exec", NULL};
+static const char *const w_pressure[] = {"auto", "field", "depth",
+                                         "station_depth", "none", NULL};
+static const char *const w_boron[] = {"uppstrom1974", "lee2010", NULL};
+static const char *const w_kf[] = {"perez-fraga1987", "dickson-riley1979",
+                                   NULL};
+static const char *const w_mcp[] = {"liu2011", "mueller-rehder2018", NULL};
+static const char *const w_fit[] = {"theil_sen", "least_squares", NULL};
 
 /* --- the top level --------------------------------------------------- */
 
@@ -280,8 +289,31 @@ static const struct opt station_rows[] = {
        "QC test settings per value"),
     OX("battery", 0, 0, "none", "a battery object", "battery voltage alerts"),
     OU("silent_after_s", OFF(cfg_station, silent_after_s), 0, 0, 0,
-       "alerts.silent_after_s", 0, 86400 * 366.0,
+       "3 x expect_every_s, else alerts.silent_after_s", 0, 86400 * 366.0,
        "alert when no packet came for this long"),
+    OU("qc_streak_n", OFF(cfg_station, qc_streak_n), 0, 0, 6, "6", 0, 10000,
+       "alert when a value is flagged 3 or 4 this often in a row; 0: off"),
+    OU("qc_clear_n", OFF(cfg_station, qc_clear_n), 0, 0, 3, "3", 1, 10000,
+       "good values in a row that clear a qc_streak alert"),
+    OU("clock_limit_s", OFF(cfg_station, clock_limit_s), 0, 0, 600, "600", 0,
+       86400 * 366.0,
+       "alert when packet times are this far from the receive time; 0: off"),
+    /* derived values (cfgderive.h) */
+    OB("derive", OFF(cfg_station, derive), 0, 1, "true",
+       "compute the derived values (salinity, oxygen saturation, ...)"),
+    OX("derive_inputs", 0, 0, "by CF standard name",
+       "an object: input -> value name", "which values feed the formulas"),
+    OW("pressure_from", OFF(cfg_station, pressure_from), 0, 0, 0, "auto",
+       w_pressure, NULL,
+       "sea pressure for salinity: auto = a pressure field, else a depth"
+       " field, else depth_m, else 0"),
+    OX("carbonate", 0, 0, "uppstrom1974, perez-fraga1987",
+       "a carbonate object", "constants of the carbonate system"),
+    OX("ph_temperature", 0, 0, "the in-situ temperature",
+       "a number (degC) or a value name",
+       "temperature the pH was measured at (adds ph_insitu)"),
+    OX("ph_from_ratio", 0, 0, "none", "{field, method}",
+       "pH from an mCP absorbance ratio field"),
 };
 TABLE(opt_station, "station", "stations.NUMBER", station_rows, NULL);
 
@@ -316,8 +348,68 @@ static const struct opt qc_rows[] = {
     ON("flat_eps", OFF(cfg_qc, flat_eps), OPT_POSITIVE, 0, 0,
        "half the field's scale", 0, NOLIM,
        "flat line: values closer than this are equal"),
+    /* added for the QC pipeline (cfgderive.h) */
+    ON("rate_n_dev", OFF(cfg_qc, rate_n_dev), OPT_POSITIVE, 0, 0, "off", 0,
+       NOLIM, "rate of change: a step over this many SDs -> flag 3"),
+    ON("rate_window_h", OFF(cfg_qc, rate_window_h), OPT_POSITIVE, 0, 25, "25",
+       0, 8760, "rate of change: hours of history the SD is taken over"),
+    OX("multi_variate", 0, 0, "off", "{with, n_dev, with_n_dev, window_h}",
+       "a step this value shows but the `with` value does not -> flag 3"),
+    OU("gap_s", OFF(cfg_qc, gap_s), 0, 0, 0, "2 x expect_every_s", 1,
+       86400 * 366.0,
+       "gap test: this long since the previous value -> flag 9"),
 };
 TABLE(opt_qc, "qc", "stations.NUMBER.qc.VALUE", qc_rows, NULL);
+
+static const struct opt mv_rows[] = {
+    OS("with", OFF(mv_in, with), OPT_REQUIRED, 0, NULL,
+       "a value name (layouts or derived)",
+       "the co-measured value, e.g. temperature"),
+    ON("n_dev", OFF(mv_in, n_dev), OPT_POSITIVE | OPT_REQUIRED, 0, 0, NULL, 0,
+       NOLIM, "this value's step, in its SDs (N_V_DEV)"),
+    ON("with_n_dev", OFF(mv_in, with_n_dev), OPT_POSITIVE | OPT_REQUIRED, 0, 0,
+       NULL, 0, NOLIM, "the with value's step, in its SDs (N_T_DEV)"),
+    ON("window_h", OFF(mv_in, window_h), OPT_POSITIVE, 0, 25, "25", 0, 8760,
+       "hours of history the SDs are taken over"),
+};
+TABLE(opt_multi_variate, "multi_variate",
+      "stations.NUMBER.qc.VALUE.multi_variate", mv_rows, NULL);
+
+static const struct opt co2_rows[] = {
+    OW("boron", OFF(co2_in, boron), 0, 0, 0, "uppstrom1974", w_boron, NULL,
+       "total boron: Uppstrom (1974) or Lee et al. (2010)"),
+    OW("kf", OFF(co2_in, kf), 0, 0, 0, "perez-fraga1987", w_kf, NULL,
+       "HF constant: Perez & Fraga (1987) or Dickson & Riley (1979)"),
+};
+TABLE(opt_carbonate, "carbonate", "stations.NUMBER.carbonate", co2_rows,
+      NULL);
+
+static const struct opt ratio_rows[] = {
+    OS("field", OFF(ratio_in, field), OPT_REQUIRED, 0, NULL,
+       "a value name of the layouts", "the absorbance ratio R = A578/A434"),
+    OW("method", OFF(ratio_in, method), 0, 0, 0, "liu2011", w_mcp, NULL,
+       "pK2e2 of mCP: Liu et al. (2011) or Mueller & Rehder (2018)"),
+};
+TABLE(opt_ph_from_ratio, "ph_from_ratio", "stations.NUMBER.ph_from_ratio",
+      ratio_rows, NULL);
+
+#define DIN(i, nm, what)                                                       \
+	OS(nm, OFF(din_in, name[i]), 0, 0, "by CF standard name",             \
+	   "a value name of the layouts", what)
+static const struct opt din_rows[] = {
+    DIN(TP_DIN_TEMPERATURE, "temperature", "in-situ temperature, degC"),
+    DIN(TP_DIN_CONDUCTIVITY, "conductivity", "conductivity"),
+    DIN(TP_DIN_SALINITY, "salinity", "practical salinity"),
+    DIN(TP_DIN_PRESSURE, "pressure", "sea pressure, dbar"),
+    DIN(TP_DIN_DEPTH, "depth", "depth, m"),
+    DIN(TP_DIN_PH, "ph", "pH, total scale"),
+    DIN(TP_DIN_OXYGEN, "oxygen", "dissolved oxygen"),
+    DIN(TP_DIN_ALKALINITY, "alkalinity", "total alkalinity, umol/kg"),
+    DIN(TP_DIN_MEAS_T, "meas_t", "temperature of the pH measurement"),
+    DIN(TP_DIN_MCP_R, "mcp_r", "mCP absorbance ratio"),
+};
+TABLE(opt_derive_inputs, "derive_inputs", "stations.NUMBER.derive_inputs",
+      din_rows, NULL);
 
 static const struct opt clim_rows[] = {
     OX("months", OPT_REQUIRED, 0, NULL, "a list of months 1..12",
@@ -338,6 +430,19 @@ static const struct opt battery_rows[] = {
        "alert when cutoff is forecast within this many hours"),
     OU("trend_h", OFF(cfg_battery, trend_h), 0, 0, 24, "24", 1, 8760,
        "hours of readings the voltage trend is fitted over"),
+    ON("critical_v", OFF(cfg_battery, critical_v), OPT_POSITIVE, 0, 0,
+       "cutoff_v + min(0.5, (warn_v - cutoff_v) / 2)", 0, 100,
+       "critical alert below this voltage"),
+    OU("median_n", OFF(cfg_battery, median_n), 0, 0, 5, "5", 1, 99,
+       "low/critical judge the median of this many readings"),
+    ON("hysteresis_v", OFF(cfg_battery, hysteresis_v), 0, 0, 0.2, "0.2", 0,
+       10, "a low/critical alert clears this far above its level"),
+    OW("fit", OFF(cfg_battery, fit), 0, 0, 0, "theil_sen", w_fit, NULL,
+       "how the voltage trend is fitted"),
+    OU("trend_min_n", OFF(cfg_battery, trend_min_n), 0, 0, 8, "8", 3, 4096,
+       "fewer readings in the window: no forecast"),
+    ON("flat_v_per_day", OFF(cfg_battery, flat_v_per_day), 0, 0, 0.02,
+       "0.02", 0, 100, "a slower fall is flat: no forecast"),
 };
 TABLE(opt_battery, "battery", "stations.NUMBER.battery", battery_rows, NULL);
 
@@ -444,6 +549,12 @@ static const struct opt alerts_rows[] = {
        " long"),
     OU("repeat_s", OFF(cfg_alerts, repeat_s), 0, 0, 21600, "21600", 60,
        86400 * 31.0, "repeat an open alert this often"),
+    OU("down_after_s", OFF(cfg_alerts, down_after_s), 0, 0, 900, "900", 0,
+       86400 * 31.0, "alert when an output has failed this long"),
+    ON("backlog_share", OFF(cfg_alerts, backlog_share), OPT_POSITIVE, 0, 0.8,
+       "0.8", 0, 1, "alert when unsent readings fill this share of the ring"),
+    OU("exec_per_min", OFF(cfg_alerts, exec_per_min), 0, 0, 6, "6", 1, 600,
+       "runs of an exec target per minute, at most (more wait)"),
 };
 TABLE(opt_alerts, "alerts", "alerts", alerts_rows, NULL);
 
@@ -486,6 +597,7 @@ static const struct opt_table *const all_tables[] = {
     &opt_crc,        &opt_field,  &opt_skip,        &opt_records,  &opt_station,
     &opt_alkalinity, &opt_qc,     &opt_climatology, &opt_battery,  &opt_input,
     &opt_ring,       &opt_output, &opt_alerts,      &opt_alert_to, &opt_status,
+    &opt_multi_variate, &opt_carbonate, &opt_ph_from_ratio, &opt_derive_inputs,
 };
 
 const struct opt_table *const *opt_tables(size_t *n)

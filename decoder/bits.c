@@ -30,18 +30,6 @@ void bits_writer(struct bitcur *c, uint8_t *p, uint64_t limit_bits,
 	c->wp = p;
 }
 
-bool bits_failed(const struct bitcur *c)
-{
-	return c->failed;
-}
-
-uint64_t bits_mask(uint32_t n)
-{
-	if (n >= 64)
-		return UINT64_MAX;
-	return ((uint64_t)1 << n) - 1;
-}
-
 int64_t bits_sign_extend(uint64_t raw, uint32_t n)
 {
 	uint64_t m;
@@ -83,15 +71,38 @@ static unsigned chunk(const struct bitcur *c, uint32_t want, uint32_t *take)
 	return avail - *take;
 }
 
+/* A field lying within 8 bytes: those bytes as one integer in the
+ * cursor's order, then one shift and mask. */
+static uint64_t get_word(struct bitcur *c, uint32_t n, unsigned off,
+                         unsigned nb)
+{
+	const uint8_t *q = c->rp + c->pos / 8;
+	uint64_t acc = 0;
+	unsigned i;
+
+	c->pos += n;
+	if (c->order == TP_ORDER_LITTLE) {
+		for (i = nb; i-- > 0;)
+			acc = (acc << 8) | q[i];
+		return (acc >> off) & bits_mask(n);
+	}
+	for (i = 0; i < nb; i++)
+		acc = (acc << 8) | q[i];
+	return (acc >> (nb * 8 - off - n)) & bits_mask(n);
+}
+
 uint64_t bits_get(struct bitcur *c, uint32_t n)
 {
 	uint64_t v = 0;
 	uint32_t got = 0, take;
-	unsigned shift;
+	unsigned shift, off;
 	uint8_t b;
 
 	if (!room(c, n, true) || !c->rp)
 		return 0;
+	off = (unsigned)(c->pos % 8);
+	if (off + n <= 64) /* the bytes holding bits [pos, pos + n) only */
+		return get_word(c, n, off, (off + n + 7) / 8);
 	while (got < n) {
 		shift = chunk(c, n - got, &take);
 		b = (uint8_t)((c->rp[c->pos / 8] >> shift) & bits_mask(take));

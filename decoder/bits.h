@@ -55,12 +55,52 @@ void bits_put(struct bitcur *c, uint64_t v, uint32_t n);
 /* Move forward n bits (any n; fails past the limit). */
 void bits_skip(struct bitcur *c, uint64_t n);
 
-bool bits_failed(const struct bitcur *c);
+static inline bool bits_failed(const struct bitcur *c)
+{
+	return c->failed;
+}
 
 /* The low n bits set (n >= 64: all 64). */
-uint64_t bits_mask(uint32_t n);
+static inline uint64_t bits_mask(uint32_t n)
+{
+	if (n >= 64)
+		return UINT64_MAX;
+	return ((uint64_t)1 << n) - 1;
+}
 
 /* The n-bit two's complement pattern raw as a signed number (n 1..64). */
 int64_t bits_sign_extend(uint64_t raw, uint32_t n);
+
+/*
+ * bits_get with its common case inline: a field of n bits that lies in
+ * the 8 bytes from the cursor's byte, all of them inside the limit
+ * (bytes [0, ceil(limit / 8))), is read with one 8-byte load in the
+ * cursor's order and two shifts.  Anything else goes to bits_get, so the
+ * result, the position and the sticky error are always bits_get's.
+ */
+static inline uint64_t bits_get_fast(struct bitcur *c, uint32_t n)
+{
+	uint64_t byte = c->pos / 8, acc;
+	unsigned off = (unsigned)(c->pos % 8);
+	const uint8_t *q;
+
+	if (c->failed || !c->rp || n == 0 || n > 64 - off ||
+	    n > c->limit - c->pos || byte + 8 > (c->limit + 7) / 8)
+		return bits_get(c, n);
+	q = c->rp + byte;
+	c->pos += n;
+	if (c->order == TP_ORDER_LITTLE) {
+		acc = (uint64_t)q[0] | (uint64_t)q[1] << 8 |
+		      (uint64_t)q[2] << 16 | (uint64_t)q[3] << 24 |
+		      (uint64_t)q[4] << 32 | (uint64_t)q[5] << 40 |
+		      (uint64_t)q[6] << 48 | (uint64_t)q[7] << 56;
+		return (acc >> off) & bits_mask(n);
+	}
+	acc = (uint64_t)q[0] << 56 | (uint64_t)q[1] << 48 |
+	      (uint64_t)q[2] << 40 | (uint64_t)q[3] << 32 |
+	      (uint64_t)q[4] << 24 | (uint64_t)q[5] << 16 |
+	      (uint64_t)q[6] << 8 | (uint64_t)q[7];
+	return (acc << off) >> (64 - n);
+}
 
 #endif

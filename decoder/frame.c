@@ -13,6 +13,7 @@
  * Nothing allocates; nothing here reads or writes outside buf[0, cap).
  */
 #include <stdint.h>
+#include <string.h>
 
 #include "tidepost/frame.h"
 
@@ -195,6 +196,28 @@ static enum tp_frame_result step(struct tp_framer *f, uint8_t b)
 	return TP_FRAME_MORE;
 }
 
+/*
+ * COBS fast path: inside a block (left > 0) every byte up to the block's
+ * end or the next 0x00 is plain data, so a run of them is copied at once,
+ * exactly as cobs_byte would put() them one by one (what does not fit cap
+ * marks the frame overflow).  Returns the bytes consumed (0: none here).
+ */
+static size_t cobs_run(struct tp_framer *f, const uint8_t *in, size_t n)
+{
+	size_t m = n < f->left ? n : f->left, c;
+	const uint8_t *z = memchr(in, 0, m);
+
+	if (z != NULL)
+		m = (size_t)(z - in);
+	c = f->cap - f->len < m ? f->cap - f->len : m;
+	memcpy(f->buf + f->len, in, c);
+	f->len += c;
+	if (c < m)
+		f->overflow = 1;
+	f->left -= (unsigned)m;
+	return m;
+}
+
 /* Forget the frame handed out by the previous call, if any. */
 static void release(struct tp_framer *f)
 {
@@ -208,7 +231,7 @@ enum tp_frame_result tp_frame_push(struct tp_framer *f, const uint8_t *in,
                                    size_t n, size_t *used)
 {
 	enum tp_frame_result r = TP_FRAME_MORE;
-	size_t i = 0;
+	size_t i = 0, k;
 
 	if (f == NULL || (in == NULL && n > 0)) {
 		if (used != NULL)
@@ -217,6 +240,13 @@ enum tp_frame_result tp_frame_push(struct tp_framer *f, const uint8_t *in,
 	}
 	release(f);
 	while (i < n && r == TP_FRAME_MORE) {
+		if (f->kind == TP_FRAMING_COBS && f->left > 0) {
+			k = cobs_run(f, in + i, n - i);
+			i += k;
+			f->offset += k;
+			if (k > 0)
+				continue;
+		}
 		r = step(f, in[i]);
 		i++;
 		f->offset++;

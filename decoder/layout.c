@@ -6,7 +6,8 @@
  * "field region" computed per packet from its length and the check
  * placement; nothing here trusts a length it has not tested.  Decoding
  * validates the layout first, so a broken layout is TP_ERR_LAYOUT, never a
- * wild read.
+ * wild read; tp_decode_validated skips the full validation for layouts the
+ * caller validated, but keeps the O(1) checks the reads depend on.
  */
 #include <float.h>
 #include <math.h>
@@ -58,18 +59,18 @@ static bool is_int_type(enum tp_type t)
 	return t >= TP_T_U8 && t <= TP_T_I64;
 }
 
-static bool type_signed(enum tp_type t)
+static inline bool type_signed(enum tp_type t)
 {
 	return t == TP_T_I8 || t == TP_T_I16 || t == TP_T_I24 ||
 	       t == TP_T_I32 || t == TP_T_I64;
 }
 
-static bool field_signed(const struct tp_field *f)
+static inline bool field_signed(const struct tp_field *f)
 {
 	return type_signed(f->type) || (f->type == TP_T_BITS && f->is_signed);
 }
 
-static double scale_of(const struct tp_field *f)
+static inline double scale_of(const struct tp_field *f)
 {
 	return f->scale == 0 ? 1.0 : f->scale;
 }
@@ -79,7 +80,7 @@ static int64_t unit_of(const struct tp_field *f)
 	return f->time_unit_s == 0 ? 1 : (int64_t)f->time_unit_s;
 }
 
-static bool is_missing(const struct tp_field *f, uint64_t raw)
+static inline bool is_missing(const struct tp_field *f, uint64_t raw)
 {
 	return f->has_missing && ((raw ^ f->missing) & bits_mask(f->bits)) == 0;
 }
@@ -641,7 +642,7 @@ enum tp_status tp_check_verify(const struct tp_layout *l, const uint8_t *p,
 
 /* ---- decoding -------------------------------------------------------- */
 
-static struct tp_value mkvalue(double v, enum tp_flag flag)
+static inline struct tp_value mkvalue(double v, enum tp_flag flag)
 {
 	struct tp_value out;
 
@@ -651,7 +652,7 @@ static struct tp_value mkvalue(double v, enum tp_flag flag)
 }
 
 /* The raw bits as a number, before scale and offset. */
-static double raw_number(const struct tp_field *f, uint64_t raw)
+static inline double raw_number(const struct tp_field *f, uint64_t raw)
 {
 	uint32_t u32;
 	float f32;
@@ -674,7 +675,7 @@ static double raw_number(const struct tp_field *f, uint64_t raw)
 
 /* A value field's number and flag: missing or non-finite -> NaN flag 9;
  * outside range -> flag 4 (QARTOD gross range); else flag 1. */
-static struct tp_value value_of(const struct tp_field *f, uint64_t raw)
+static inline struct tp_value value_of(const struct tp_field *f, uint64_t raw)
 {
 	double x;
 
@@ -767,7 +768,7 @@ static enum tp_status decode_header(const struct tp_layout *l,
 			pk->header[i] = mkvalue(NAN, TP_FLAG_NOT_EVALUATED);
 			continue;
 		}
-		raw = bits_get(&c, f->bits);
+		raw = bits_get_fast(&c, f->bits);
 		if (bits_failed(&c))
 			return TP_ERR_SHORT;
 		if (l->has_records && (int)i == l->records.count_field)
@@ -795,6 +796,8 @@ static enum tp_status find_records(const struct tp_layout *l,
 		pk->record_bits = 0;
 		return TP_OK;
 	}
+	if (rb == 0)
+		return TP_ERR_LAYOUT; /* only without validation */
 	pk->record_bits = rb;
 	fit = (end_bits - pk->records_bit) / rb;
 	if (l->records.count_field < 0) {
@@ -809,8 +812,32 @@ static enum tp_status find_records(const struct tp_layout *l,
 	return TP_OK;
 }
 
-enum tp_status tp_decode_packet(const struct tp_layout *l, const uint8_t *p,
-                                size_t len, struct tp_packet *pk)
+/*
+ * What decoding itself relies on to stay inside its arrays and the
+ * packet, whatever else is wrong with the layout: field counts under
+ * TP_MAX_FIELDS with their arrays present, a known check kind of a
+ * width whose value fits the cursor, a count field inside the header.
+ * (Zero-width record groups are caught in find_records.)  O(1).
+ */
+static bool decodable(const struct tp_layout *l)
+{
+	const struct tp_records *r = &l->records;
+
+	if (l->n_fields > TP_MAX_FIELDS || (l->n_fields && !l->fields))
+		return false;
+	if ((unsigned)l->check.kind > TP_CHECK_XOR8 ||
+	    (l->check.kind == TP_CHECK_CRC &&
+	     (l->check.crc.p.width < 8 || l->check.crc.p.width > 32)))
+		return false;
+	if (!l->has_records)
+		return true;
+	return r->n_fields > 0 && r->n_fields <= TP_MAX_FIELDS &&
+	       r->fields != NULL && r->count_field < (int)l->n_fields;
+}
+
+static enum tp_status decode_packet(const struct tp_layout *l,
+                                    const uint8_t *p, size_t len,
+                                    struct tp_packet *pk, bool validate)
 {
 	struct region rg;
 	enum tp_status st;
@@ -822,7 +849,7 @@ enum tp_status tp_decode_packet(const struct tp_layout *l, const uint8_t *p,
 	pk->layout = l;
 	pk->data = p;
 	pk->len = len;
-	if (tp_layout_validate(l, NULL) != TP_OK)
+	if (validate ? tp_layout_validate(l, NULL) != TP_OK : !decodable(l))
 		return TP_ERR_LAYOUT;
 	if (len > TP_MAX_PACKET || !length_ok(l, len))
 		return TP_ERR_LENGTH;
@@ -836,6 +863,19 @@ enum tp_status tp_decode_packet(const struct tp_layout *l, const uint8_t *p,
 	if (st != TP_OK)
 		pk->n_records = 0;
 	return st;
+}
+
+enum tp_status tp_decode_packet(const struct tp_layout *l, const uint8_t *p,
+                                size_t len, struct tp_packet *pk)
+{
+	return decode_packet(l, p, len, pk, true);
+}
+
+enum tp_status tp_decode_validated(const struct tp_layout *l,
+                                   const uint8_t *p, size_t len,
+                                   struct tp_packet *pk)
+{
+	return decode_packet(l, p, len, pk, false);
 }
 
 /* Record k's fields into r->values[n_fields ..] and its time. */
@@ -864,7 +904,7 @@ static enum tp_status decode_fields(const struct tp_packet *pk, uint32_t k,
 			*slot = mkvalue(NAN, TP_FLAG_NOT_EVALUATED);
 			continue;
 		}
-		raw = bits_get(&c, f->bits);
+		raw = bits_get_fast(&c, f->bits);
 		if (f->role != TP_ROLE_TIME_OFFSET) {
 			*slot = value_of(f, raw);
 			continue;

@@ -24,6 +24,9 @@ What the data contains (fixed seed, so every run gives the same file):
 - a radio outage of 26 h (packets lost; seq keeps counting at the station),
   a handful of missing values (empty cells) and two out-of-range glitches
   (a pH of 9.35 and an oxygen of 405 umol/kg) so QC has something to flag.
+- for the QC demo, also invented: one pH spike (+0.25 for a single record
+  on day 7) and a temperature sensor stuck for 3 h on day 14 (12 records
+  repeating one value: a flat line).
 
 Usage: gen.py [-o FILE]   (CSV to stdout by default)
 """
@@ -50,6 +53,8 @@ MISSING = {  # (record index, field) -> empty cell; invented sensor faults
     (17 * 96 + 12, "temperature"),
 }
 GLITCH = {(3 * 96 + 55, "ph"): 9.35, (15 * 96 + 60, "oxygen"): 405.0}
+SPIKE = (7 * 96 + 50, "ph", 0.25)  # invented: one record, +0.25 pH
+FLAT = (14 * 96 + 20, 12, "temperature")  # invented: stuck for 12 records
 
 COLUMNS = ["kind", "station", "seq", "time", "battery", "logger_temp",
            "logger_rh", "ph", "temperature", "conductivity", "oxygen"]
@@ -133,6 +138,7 @@ def rows(rng):
     """Yield CSV rows (dicts), four per packet, skipping the outage."""
     n_packets = DAYS * 24
     clouds = [rng.uniform(0.6, 1.0) for _ in range(DAYS + 1)]
+    stuck = None
     for p in range(n_packets):
         hk = None
         for j in range(PER_PACKET):
@@ -145,6 +151,12 @@ def rows(rng):
             for (idx, name), v in GLITCH.items():
                 if idx == k:
                     vals[name] = v
+            if k == SPIKE[0]:
+                vals[SPIKE[1]] = round(vals[SPIKE[1]] + SPIKE[2], 3)
+            if k == FLAT[0]:
+                stuck = vals[FLAT[2]]
+            if FLAT[0] < k < FLAT[0] + FLAT[1]:
+                vals[FLAT[2]] = stuck
             for idx, name in MISSING:
                 if idx == k:
                     vals[name] = ""

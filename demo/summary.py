@@ -17,6 +17,15 @@ from datetime import datetime, timezone
 
 FLAG_NAMES = ((1, "pass"), (2, "not evaluated"), (3, "suspect"),
               (4, "fail"), (9, "missing"))
+# The derived values tidepost appends (decoder/derive.c) and their units.
+DERIVED_UNITS = {
+    "salinity": "1", "oxygen_solubility": "umol/kg",
+    "oxygen_saturation": "%", "ph": "1", "alkalinity": "umol/kg",
+    "ph_insitu": "1", "pco2": "uatm", "fco2": "uatm", "dic": "umol/kg",
+    "carbonate_ion": "umol/kg", "omega_aragonite": "1",
+    "omega_calcite": "1"}
+# QARTOD roll-up rank (qc.h): 4 > 3 > 1 > 2 > 9.
+RANK = {4: 4, 3: 3, 1: 2, 2: 1, 9: 0}
 
 
 def strip_comments(text):
@@ -87,16 +96,35 @@ class Stats:
         self.max = max(self.max, v)
 
 
+def apply_update(by_id, u):
+    """An update record {"update": id, "flags": {...}, "tests": {...}}
+    makes the earlier reading's flags worse, never better (process.h)."""
+    r = by_id.get(u.get("update"))
+    if r is None:
+        return
+    for k, f in u.get("flags", {}).items():
+        old = r.setdefault("flags", {}).get(k)
+        if old is None or RANK.get(f, 0) > RANK.get(old, 0):
+            r["flags"][k] = f
+    for k, t in u.get("tests", {}).items():
+        r.setdefault("tests", {}).setdefault(k, {}).update(t)
+
+
 def read_readings(stream):
-    readings, bad = [], 0
+    readings, bad, updates = [], 0, []
     for line in stream:
         line = line.strip()
         if not line:
             continue
         try:
-            readings.append(json.loads(line))
+            obj = json.loads(line)
         except ValueError:
             bad += 1
+            continue
+        (updates if "update" in obj else readings).append(obj)
+    by_id = {r.get("id"): r for r in readings}
+    for u in updates:
+        apply_update(by_id, u)
     readings.sort(key=lambda r: (parse_time(r["time"]), r.get("seq", 0)))
     return readings, bad
 
@@ -143,13 +171,79 @@ def print_values(readings, units):
             continue
         fl = ", ".join("%s %d" % (nm, s.flags[c]) for c, nm in FLAG_NAMES
                        if s.flags.get(c))
+        unit = units.get(k) or DERIVED_UNITS.get(k, "?") + " *"
         if s.n:
             print("  %-16s %-8s %9.3f %9.3f %9.3f  %s" % (
-                k, units.get(k, "(derived)"), s.min, s.sum / s.n, s.max,
-                fl))
+                k, unit, s.min, s.sum / s.n, s.max, fl))
         else:
             print("  %-16s %-8s %9s %9s %9s  %s" % (
-                k, units.get(k, "(derived)"), "-", "-", "-", fl))
+                k, unit, "-", "-", "-", fl))
+    if any(k not in units for k in names):
+        print("  (* derived by tidepost from the measured values)")
+
+
+def flagged(r, units):
+    """The measured values of r flagged 3 or 4, with the tests that said
+    so (when decode ran with --qc-tests), and how many derived values
+    carry a 3 or 4."""
+    meas, n_derived = [], 0
+    for k, f in r.get("flags", {}).items():
+        if f not in (3, 4):
+            continue
+        if k not in units:
+            n_derived += 1
+            continue
+        why = sorted("%s %d" % (t, v) for t, v in
+                     r.get("tests", {}).get(k, {}).items() if v in (3, 4))
+        meas.append((k, f, tuple(why)))
+    return sorted(meas), n_derived
+
+
+def describe(meas, r):
+    out = []
+    for k, f, why in meas:
+        v = r.get("values", {}).get(k)
+        out.append("%s %s flag %d%s" % (
+            k, "null" if v is None else v, f,
+            " (%s)" % ", ".join(why) if why else ""))
+    return "; ".join(out)
+
+
+def print_events(readings, units):
+    """Readings with a measured value flagged 3/4; runs of readings with
+    the same values and tests flagged are merged into one line."""
+    events = []
+    for r in readings:
+        meas, nd = flagged(r, units)
+        if not meas:
+            continue
+        key = tuple((k, why) for k, _, why in meas)
+        t = parse_time(r["time"])
+        if events and events[-1]["key"] == key and \
+                t - events[-1]["t1"] <= 3600:
+            events[-1].update(t1=t, n=events[-1]["n"] + 1,
+                              nd=max(events[-1]["nd"], nd),
+                              flags=events[-1]["flags"] | {
+                                  f for _, f, _ in meas})
+            continue
+        events.append({"key": key, "t0": t, "t1": t, "n": 1, "nd": nd,
+                       "text": describe(meas, r),
+                       "flags": {f for _, f, _ in meas}})
+    print("flagged events (QC flag 3 suspect / 4 fail): %d" % len(events))
+    for e in events[:30]:
+        when = fmt_time(e["t0"]) if e["n"] == 1 else "%s .. %s (%d readings)" \
+            % (fmt_time(e["t0"]), fmt_time(e["t1"])[11:], e["n"])
+        print("  %s: %s%s" % (when, e["text"] if e["n"] == 1 else
+                              "%s, flags %s" % (
+                                  ", ".join(sorted({k for k, _ in e["key"]})),
+                                  "/".join(map(str, sorted(e["flags"])))) +
+                              (" (%s)" % ", ".join(sorted(
+                                  {w for _, why in e["key"] for w in why}))
+                               if any(why for _, why in e["key"]) else ""),
+                              ("; %d derived value(s) inherit it" % e["nd"])
+                              if e["nd"] else ""))
+    if len(events) > 30:
+        print("  ... %d more" % (len(events) - 30))
 
 
 def print_battery(readings):
@@ -253,6 +347,7 @@ def main():
         print("single packets missing by seq (no gap in time beyond one "
               "packet): %s" % ", ".join(map(str, single)))
     print_values(readings, units_of(layout))
+    print_events(readings, units_of(layout))
     print_battery(readings)
     print_decoder(args.decoder_log, args.manifest)
 

@@ -254,6 +254,20 @@ enum tp_status tp_check_verify(const struct tp_layout *l, const uint8_t *p,
 enum tp_status tp_decode_packet(const struct tp_layout *l, const uint8_t *p,
                                 size_t len, struct tp_packet *pk);
 
+/*
+ * tp_decode_packet for a layout the caller has validated: l passed
+ * tp_layout_validate and has not changed since (a config loader validates
+ * every layout once).  It skips that O(fields) validation per packet.
+ * A layout that breaks the promise still cannot make it read outside p or
+ * its arrays: field counts over TP_MAX_FIELDS, missing field arrays, an
+ * unknown check kind or CRC width, a count field outside the header and
+ * records of zero bits are TP_ERR_LAYOUT; other faults decode as the
+ * layout says.  Same results as tp_decode_packet for a valid layout.
+ */
+enum tp_status tp_decode_validated(const struct tp_layout *l,
+                                   const uint8_t *p, size_t len,
+                                   struct tp_packet *pk);
+
 /* Decode record k (< pk->n_records, else TP_ERR_ARG) into r, header
  * values included.  Reads only inside [pk->data, pk->data + pk->len). */
 enum tp_status tp_decode_record(const struct tp_packet *pk, uint32_t k,
