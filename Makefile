@@ -19,7 +19,8 @@ ifeq ($(CI),true)
 WARN    += -Werror
 endif
 BASE_CFLAGS := -std=c11 -O2 -g $(WARN) -Iinclude -Idaemon \
-               -D_DEFAULT_SOURCE -D_GNU_SOURCE -DTP_VERSION=\"$(VERSION)\"
+               -D_DEFAULT_SOURCE -D_GNU_SOURCE \
+               -D_FILE_OFFSET_BITS=64 -D_TIME_BITS=64 -DTP_VERSION=\"$(VERSION)\"
 ifdef SANITIZE
 BASE_CFLAGS += -fsanitize=$(SANITIZE) -fno-omit-frame-pointer -fno-sanitize-recover=all
 LDSAN       := -fsanitize=$(SANITIZE)
@@ -222,3 +223,79 @@ uninstall:
 		[ ! -d "$$d" ] || rmdir "$$d" 2>/dev/null || \
 		echo "uninstall: $$d kept: it holds the operator's files"; \
 	done
+
+# ---- embedded proof ------------------------------------------------------
+.PHONY: firmware-check cross-arm64 cross-armhf
+
+# The decoder on a bare Cortex-M4F: freestanding build, nm -u audit, flash
+# and RAM figures (core code target 16 KiB), two images run on QEMU.
+firmware-check:
+	@sh tests/firmware/run.sh
+
+# The whole program cross-built for 64-/32-bit ARM; unit tests and the
+# decode/encode integration tests run under qemu-user.  Each script
+# installs its own toolchain and multiarch libraries.
+cross-arm64:
+	@sh tests/cross/run.sh arm64
+
+cross-armhf:
+	@sh tests/cross/run.sh armhf
+
+# --- quality gates (begin) ---
+# Run by `make check` after the tests (STYLE.md Tests, RELIABILITY.md T8,
+# T16): a sanitizer build of the unit tests and fuzz replay, valgrind on
+# the daemon's integration tests, line coverage with floors, and the
+# allocation-failure torture.  Each gate builds in its own folder beside
+# $(BUILD).  Long runs (hours) are behind `make check-long`.
+ASAN_BUILD    ?= $(BUILD)-asan
+COV_BUILD     ?= $(BUILD)-cov
+GATE_JOBS     ?= 2
+FLOOR_DECODER ?= 90
+FLOOR_RING    ?= 85
+GCOV          ?= gcov
+LONG_FUZZ_SECONDS ?= 3600
+LONG_KILL_ROUNDS  ?= 10000
+OOM_BIN       := $(BUILD)/oom/test_oom
+GATE_SAN_ENV  := ASAN_OPTIONS=detect_leaks=1:abort_on_error=1 \
+                 UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1
+
+.PHONY: check-asan check-valgrind check-coverage oom check-long
+
+# Allocation-failure torture: defines malloc itself, so never with a
+# sanitizer runtime; not a unit test (not in $(UNIT_BIN)).
+$(OOM_BIN): $(BUILD)/obj/tests/oom/test_oom.o $(DAEMON_LIB) $(LIB)
+	@mkdir -p $(@D)
+	$(CC) $(ALL_CFLAGS) $(LDFLAGS) -o $@ $^ $(CMOCKA_LIBS) $(DEPS_LIBS) -lm
+
+ifdef SANITIZE
+oom:
+	@echo "oom: not run with SANITIZE (the sanitizer owns malloc)"
+else
+oom: $(OOM_BIN)
+	$(OOM_BIN)
+endif
+
+check-asan:
+	$(MAKE) -j$(GATE_JOBS) SANITIZE=address,undefined BUILD=$(ASAN_BUILD) \
+		$(UNIT_BIN:$(BUILD)/%=$(ASAN_BUILD)/%) \
+		$(FUZZ_REPLAY:$(BUILD)/%=$(ASAN_BUILD)/%)
+	$(GATE_SAN_ENV) $(MAKE) SANITIZE=address,undefined \
+		BUILD=$(ASAN_BUILD) unit fuzz-replay
+
+check-valgrind: all
+	@sh tests/gates/valgrind.sh $(BUILD)
+
+check-coverage:
+	$(MAKE) -j$(GATE_JOBS) BUILD=$(COV_BUILD) SANITIZE= \
+		CFLAGS="-O0 --coverage" \
+		$(UNIT_BIN:$(BUILD)/%=$(COV_BUILD)/%) \
+		$(FUZZ_REPLAY:$(BUILD)/%=$(COV_BUILD)/%) $(COV_BUILD)/oom/test_oom
+	@GCOV="$(GCOV)" FLOOR_DECODER=$(FLOOR_DECODER) \
+		FLOOR_RING=$(FLOOR_RING) sh tests/gates/coverage.sh $(COV_BUILD)
+
+check-long: deps all $(SHIM)
+	sh tests/fuzz/run-fuzz.sh $(LONG_FUZZ_SECONDS)
+	TP_KILL_ROUNDS=$(LONG_KILL_ROUNDS) TIDEPOST=$(BUILD)/tidepost \
+		$(PYTHON) tests/integration/test_killloop.py
+	@echo "check-long: the 24-hour simulated outage is not implemented yet"
+# --- quality gates (end) ---

@@ -556,7 +556,8 @@ def test_memory_stays_flat():
     eq(rc, 0, "big")
     assert "decode: 200000 frames, 200000 readings," in err, err
     assert kb_big < kb_small + 2048, (kb_small, kb_big)
-    assert kb_big < 16384, kb_big
+    if not os.environ.get("TIDEPOST_EMULATOR"):  # qemu counts its own RSS
+        assert kb_big < 16384, kb_big
 
 
 def test_command_line():
@@ -577,9 +578,10 @@ def test_command_line():
     eq(rc, 2, "unknown command")
     assert "unknown command 'frobnicate'" in err, err
     eq(run([])[0], 2, "no command")
-    rc, out, err = run(["run", "-c", CFG])
-    eq(rc, 2, "run is not built yet")
-    assert "not built yet" in err, err
+    # a config without inputs or outputs cannot be run: refused at once
+    rc, out, err = run(["run", "-c", CFG, "--once"])
+    assert rc != 0, (rc, err)
+    assert "input" in err or "output" in err, err
     rc, out, err = run(["check", "-c", CFG])
     eq((rc, out.decode()), (0, "check: %s: ok: 2 layouts, 2 stations, "
                             "0 inputs, 0 outputs\n" % CFG), "check ok")
