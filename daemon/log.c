@@ -20,8 +20,8 @@ static bool log_prefix = false;
 void log_set_sink(enum log_sink sink, const char *ident)
 {
 	if (sink == LOG_SINK_SYSLOG && log_sink != LOG_SINK_SYSLOG)
-		openlog(ident != NULL ? ident : "tidepost", LOG_PID | LOG_NDELAY,
-		        LOG_DAEMON);
+		openlog(ident != NULL ? ident : "tidepost",
+		        LOG_PID | LOG_NDELAY, LOG_DAEMON);
 	else if (sink == LOG_SINK_STDERR && log_sink == LOG_SINK_SYSLOG)
 		closelog();
 	log_sink = sink;

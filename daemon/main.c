@@ -9,6 +9,7 @@
 
 #include "cli.h"
 #include "cli_run.h"
+#include "cli_report.h"
 #include "log.h"
 
 struct command {
@@ -27,7 +28,8 @@ static const struct command commands[] = {
 	{ "encode", cmd_encode,
 	  "readings (CSV) -> framed packets of a layout on stdout",
 	  cmd_encode_usage },
-	{ "replay", cmd_replay, "put archived packets into the ring for delivery",
+	{ "replay", cmd_replay,
+	  "put archived packets into the ring for delivery",
 	  cmd_replay_usage },
 	{ "status", cmd_status,
 	  "what the running daemon knows: stations, outputs, alerts",
@@ -36,6 +38,9 @@ static const struct command commands[] = {
 	  cmd_ring_usage },
 	{ "check", cmd_check, "validate a config and its layouts",
 	  cmd_check_usage },
+	{ "report", cmd_report,
+	  "readings -> an HTML page (time series, summary) or CSV summary",
+	  cmd_report_usage },
 };
 
 #define N_COMMANDS (sizeof(commands) / sizeof(commands[0]))
