@@ -27,7 +27,7 @@
  * Hash: 64-bit FNV-1a (Fowler, Noll, Vo; the FNV-1a 64-bit offset basis
  * 14695981039346656037 and prime 1099511628211, [from memory]) of the id
  * text.  Two different ids colliding has probability about n^2 / 2^65 for
- * n remembered ids (about 3e-8 for a million): then one reading would be
+ * n remembered ids (about 1e-10 for 64 Ki): then one reading would be
  * dropped as a duplicate.
  *
  * Called by ingest.c (every reading) and cmd_replay.c (through ingest).
@@ -39,7 +39,7 @@
 #include <stddef.h>
 #include <stdint.h>
 
-#define SEEN_GEN_IDS_DEFAULT (1u << 19) /* remembers 512 Ki .. 1 Mi ids */
+#define SEEN_GEN_IDS_DEFAULT (1u << 15) /* remembers 32 Ki .. 64 Ki ids */
 #define SEEN_PENDING_MAX     4096u      /* staged ids between commits */
 
 struct seen;
