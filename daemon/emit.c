@@ -106,7 +106,6 @@ static void drop_negative_zero(struct buf *b, size_t start)
 	b->len--;
 }
 
-#ifdef EMIT_HAVE_U128
 /*
  * |v| * 10^d rounded to an integer the way glibc's printf("%.*f") rounds
  * in the default rounding mode: to nearest, ties to even, on the exact
@@ -115,9 +114,12 @@ static void drop_negative_zero(struct buf *b, size_t start)
  * m < 2^53, so m * 10^d < 2^83 fits 128 bits and the rounding is an
  * exact comparison of the bits shifted out with one half.  The caller
  * has checked |v| < 10^(18 - d), so the result is at most 10^18.
+ * Without 128-bit integers (32-bit targets) it returns false: the caller
+ * then leaves the number to snprintf.
  */
-static uint64_t scaled_round(double v, int d)
+static bool exact_round(double v, int d, uint64_t *out)
 {
+#ifdef EMIT_HAVE_U128
 	static const uint32_t p10[] = { 1, 10, 100, 1000, 10000, 100000,
 		                        1000000, 10000000, 100000000,
 		                        1000000000 };
@@ -134,44 +136,53 @@ static uint64_t scaled_round(double v, int d)
 		m |= UINT64_C(1) << 52;
 	e -= 1075;
 	x = (u128)m * p10[d];
-	if (e >= 0)
-		return (uint64_t)(x << e);
+	if (e >= 0) {
+		*out = (uint64_t)(x << e);
+		return true;
+	}
 	k = -e;
-	if (k > 100) /* x < 2^83 <= half: rounds to 0 */
-		return 0;
+	if (k > 100) { /* x < 2^83 <= half: rounds to 0 */
+		*out = 0;
+		return true;
+	}
 	q = (uint64_t)(x >> k);
 	rest = x & (((u128)1 << k) - 1);
 	half = (u128)1 << (k - 1);
 	if (rest > half || (rest == half && (q & 1)))
 		q++;
-	return q;
+	*out = q;
+	return true;
+#else
+	(void)v;
+	(void)d;
+	(void)out;
+	return false;
+#endif
 }
 
 /*
- * scaled_round, quicker when it can be: y = |v| * 10^d in double is the
+ * exact_round, quicker when it can be: y = |v| * 10^d in double is the
  * exact product rounded once, so for y < 2^32 it is within 2^-22 of it.
  * Unless y lies within 2^-20 of a half-integer, no half-integer lies
  * between y and the exact product, so both round to the same integer and
  * y's fraction (exact: y - floor(y)) decides.  Else the exact path.
  */
-static inline uint64_t near_round(double v, int d)
+static inline bool near_round(double v, int d, uint64_t *q)
 {
 	static const double p10[] = { 1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6,
 		                      1e7, 1e8, 1e9 };
 	double y = fabs(v) * p10[d], fr;
-	uint64_t q;
 
 	if (!(y < 4294967296.0))
-		return scaled_round(v, d);
-	q = (uint64_t)y;
-	fr = y - (double)q;
+		return exact_round(v, d, q);
+	*q = (uint64_t)y;
+	fr = y - (double)*q;
 	if (fabs(fr - 0.5) <= 0x1p-20)
-		return scaled_round(v, d);
-	return q + (fr > 0.5);
+		return exact_round(v, d, q);
+	*q += fr > 0.5;
+	return true;
 }
-#endif
 
-#ifdef EMIT_HAVE_U128
 /* emit_fixed_chars (see emit.h).  The digits go to tmp first and are
  * copied out in fixed-size blocks (hence EMIT_FIXED_MAX of room). */
 static inline size_t fixed_chars(char *out, double v, int d)
@@ -184,7 +195,8 @@ static inline size_t fixed_chars(char *out, double v, int d)
 
 	if (d < 0 || d > EMIT_FAST_DECIMALS || !(fabs(v) < lim[d]))
 		return 0;
-	q = near_round(v, d);
+	if (!near_round(v, d, &q))
+		return 0;
 	*p = '-'; /* kept only for a value not rounding to 0 (emit.h) */
 	p += q != 0 && signbit(v);
 	s = digits_back(tmp + 24, q, d + 1);
@@ -198,15 +210,6 @@ static inline size_t fixed_chars(char *out, double v, int d)
 	}
 	return (size_t)(p - out);
 }
-#else
-static inline size_t fixed_chars(char *out, double v, int d)
-{
-	(void)out;
-	(void)v;
-	(void)d;
-	return 0;
-}
-#endif
 
 size_t emit_fixed_chars(char *out, double v, int decimals)
 {
@@ -933,8 +936,14 @@ static bool pcache_start(struct emit_pcache *pc, const struct emit_reading *er,
 static void pcache_cut(struct emit_pcache *pc, int i, bool last,
                        const struct tp_layout *l)
 {
+	static const char zeros[PLAN_SLACK];
+
 	pc->cut[i] = pc->text.len;
-	if (last && !buf_failed(&pc->text))
+	if (!last)
+		return;
+	buf_add(&pc->text, zeros, PLAN_SLACK); /* so pieces copy in blocks */
+	buf_trim(&pc->text, PLAN_SLACK);
+	if (!buf_failed(&pc->text))
 		pc->layout = l;
 }
 
@@ -1020,8 +1029,8 @@ static void plan_member(struct buf *b, const char *key, size_t key_len,
 /* The same member written at p, which has room for key_len + 16 +
  * EMIT_FIXED_MAX bytes; returns the end, or NULL when the number needs
  * the slow form (then what was written at p is not used). */
-static inline char *member_at(char *p, const char *key, size_t key_len, int form,
-                       const struct tp_value *v, bool flag)
+static inline char *member_at(char *p, const char *key, size_t key_len,
+                              int form, const struct tp_value *v, bool flag)
 {
 	size_t n;
 
@@ -1133,6 +1142,61 @@ static void json_uncached(struct buf *b, const struct emit_plan *pl,
 	buf_add(b, LIT("}}\n"));
 }
 
+/* plan_members in place at p (room: pl->room): NULL when a number needs
+ * the slow form. */
+static char *members_at(char *p, const struct emit_plan *pl,
+                        const struct emit_reading *er, size_t from, size_t n,
+                        bool flags, bool first)
+{
+	const struct emit_col *c;
+	size_t i, skip;
+
+	for (i = from; i < pl->n_cols && pl->cols[i].slot < n; i++) {
+		c = &pl->cols[i];
+		skip = first ? 1 : 0;
+		p = member_at(p, pl->text + c->key + skip, c->key_len - skip,
+		              c->form, &er->reading->values[c->slot], flags);
+		if (p == NULL)
+			return NULL;
+		first = false;
+	}
+	return p;
+}
+
+/* Piece i of the cache copied to p in blocks (text has PLAN_SLACK). */
+static char *put_piece(char *p, const struct emit_pcache *pc, int i)
+{
+	size_t n;
+	const char *s = piece(pc, i, &n);
+
+	return put_blocks(p, s, n);
+}
+
+/* json_cached in one buf_room, when it fits and every number takes the
+ * fast form; false (nothing written) otherwise. */
+static bool json_in_place(struct buf *b, const struct emit_plan *pl,
+                          struct emit_pcache *pc,
+                          const struct emit_reading *er, size_t ns)
+{
+	char *p = buf_room(b, pc->text.len + 4 * 16 + 20 + EMIT_TIME_LEN +
+	                      2 * pl->room + 3);
+
+	if (p == NULL)
+		return false;
+	p = put_piece(p, pc, 0);
+	p = put_u64(p, er->reading->record);
+	p = put_piece(p, pc, 1);
+	p = put_time_cached(p, er->reading->time_s, &pc->day, pc->date);
+	p = put_piece(p, pc, 2);
+	p = members_at(p, pl, er, pl->n_head_cols, ns, false, !pc->any_head);
+	if (p == NULL)
+		return false;
+	p = put_piece(p, pc, 3);
+	p = members_at(p, pl, er, pl->n_head_cols, ns, true, !pc->any_head);
+	buf_commit(b, put_mem(p, LIT("}}\n")));
+	return true;
+}
+
 void emit_json_planned(struct buf *b, const struct emit_plans *ps,
                        const struct emit_reading *er)
 {
@@ -1144,12 +1208,15 @@ void emit_json_planned(struct buf *b, const struct emit_plans *ps,
 		return;
 	}
 	ns = n_slots(er);
-	if (!pcache_hit(ps->pc, er, ns) && pcache_start(ps->pc, er, ns))
-		pcache_json(ps->pc, pl, er, ns);
-	if (ps->pc != NULL && ps->pc->layout == pl->layout)
-		json_cached(b, pl, ps->pc, er, ns);
-	else
+	if (ps->pc != NULL && !pcache_hit(ps->pc, er, ns)) {
+		ps->pc->layout = NULL; /* stale, even if no new one is made */
+		if (pcache_start(ps->pc, er, ns))
+			pcache_json(ps->pc, pl, er, ns);
+	}
+	if (ps->pc == NULL || ps->pc->layout != pl->layout)
 		json_uncached(b, pl, er, ns);
+	else if (!json_in_place(b, pl, ps->pc, er, ns))
+		json_cached(b, pl, ps->pc, er, ns);
 }
 
 /* Quote the cell written since `start` if it needs it (RFC 4180). */
@@ -1408,9 +1475,11 @@ static size_t csv_head(struct buf *b, const struct emit_csv *c, size_t li,
 	size_t start = b->len, n, hb_len;
 	const char *s, *hb;
 
-	if (!pcache_hit(pc, er, ns) && !csv_special(er->station) &&
-	    pcache_start(pc, er, ns))
-		pcache_csv(pc, c, li, er, ns);
+	if (pc != NULL && !pcache_hit(pc, er, ns)) {
+		pc->layout = NULL; /* stale, even if no new one can be made */
+		if (!csv_special(er->station) && pcache_start(pc, er, ns))
+			pcache_csv(pc, c, li, er, ns);
+	}
 	if (pc != NULL && pc->layout == pk->layout) {
 		s = piece(pc, 0, &n);
 		buf_add(b, s, n);

@@ -80,8 +80,9 @@ void emit_fixed(struct buf *b, double v, int decimals);
  * rounds to zero, written at out (EMIT_FIXED_MAX bytes, no NUL).  Rounds
  * like glibc's printf in the default rounding mode: the exact binary
  * value to nearest, ties to even.  Returns the length, or 0 when it does
- * not apply (other decimals, |v| too large, NaN, or no 128-bit integers
- * on this compiler): emit_fixed then uses snprintf.
+ * not apply (other decimals, |v| too large, NaN; and where the compiler
+ * has no 128-bit integers, values within 2^-20 of a rounding tie or with
+ * |v| * 10^decimals >= 2^32): emit_fixed then uses snprintf.
  */
 size_t emit_fixed_chars(char *out, double v, int decimals);
 void emit_float32(struct buf *b, double v);

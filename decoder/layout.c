@@ -796,8 +796,6 @@ static enum tp_status find_records(const struct tp_layout *l,
 		pk->record_bits = 0;
 		return TP_OK;
 	}
-	if (rb == 0)
-		return TP_ERR_LAYOUT; /* only without validation */
 	pk->record_bits = rb;
 	fit = (end_bits - pk->records_bit) / rb;
 	if (l->records.count_field < 0) {
@@ -816,8 +814,8 @@ static enum tp_status find_records(const struct tp_layout *l,
  * What decoding itself relies on to stay inside its arrays and the
  * packet, whatever else is wrong with the layout: field counts under
  * TP_MAX_FIELDS with their arrays present, a known check kind of a
- * width whose value fits the cursor, a count field inside the header.
- * (Zero-width record groups are caught in find_records.)  O(1).
+ * width whose value fits the cursor, a count field inside the header,
+ * records of at least one bit (find_records divides by their size).
  */
 static bool decodable(const struct tp_layout *l)
 {
@@ -832,7 +830,8 @@ static bool decodable(const struct tp_layout *l)
 	if (!l->has_records)
 		return true;
 	return r->n_fields > 0 && r->n_fields <= TP_MAX_FIELDS &&
-	       r->fields != NULL && r->count_field < (int)l->n_fields;
+	       r->fields != NULL && r->count_field < (int)l->n_fields &&
+	       tp_layout_record_bits(l) > 0;
 }
 
 static enum tp_status decode_packet(const struct tp_layout *l,
