@@ -16,17 +16,17 @@
 #include "log.h"
 
 const char cmd_check_usage[] =
-	"usage: tidepost check -c CONFIG\n"
-	"\n"
-	"Load CONFIG and every layout it names and report what is wrong.\n"
-	"Every problem is printed with its place (file:line:column and the\n"
-	"key path) and what would be valid; nothing is started.\n"
-	"\n"
-	"  -c, --config CONFIG   the config file to check\n"
-	"  -h, --help            this text\n"
-	"\n"
-	"Exit status: 0 the config is valid (a summary is printed),\n"
-	"1 it has problems, 2 usage error.\n";
+    "usage: tidepost check -c CONFIG\n"
+    "\n"
+    "Load CONFIG and every layout it names and report what is wrong.\n"
+    "Every problem is printed with its place (file:line:column and the\n"
+    "key path) and what would be valid; nothing is started.\n"
+    "\n"
+    "  -c, --config CONFIG   the config file to check\n"
+    "  -h, --help            this text\n"
+    "\n"
+    "Exit status: 0 the config is valid (a summary is printed),\n"
+    "1 it has problems, 2 usage error.\n";
 
 int cli_source_add(struct cli_source *s, const char *cmd, const char *path)
 {
@@ -60,12 +60,14 @@ int cli_source_load(const struct cli_source *s, const char *cmd,
 	*out = NULL;
 	if (s->config != NULL && s->n_layouts > 0) {
 		log_err("%s: -c and -l cannot be combined: give a config or "
-		        "layout files", cmd);
+		        "layout files",
+		        cmd);
 		return -1;
 	}
 	if (s->config == NULL && s->n_layouts == 0) {
 		log_err("%s: no layouts: give -c CONFIG or -l LAYOUT.json; "
-		        "see 'tidepost help %s'", cmd, cmd);
+		        "see 'tidepost help %s'",
+		        cmd, cmd);
 		return -1;
 	}
 	memset(&errs, 0, sizeof(errs));
@@ -87,7 +89,7 @@ int cli_source_load(const struct cli_source *s, const char *cmd,
 int cli_bad_option(const char *cmd, int c, char **argv)
 {
 	const char *what = argv[optind - 1];
-	char shortopt[3] = { '-', (char)optopt, '\0' };
+	char shortopt[3] = {'-', (char)optopt, '\0'};
 
 	if (optopt > 0 && optopt < 128)
 		what = shortopt;
@@ -100,8 +102,7 @@ int cli_bad_option(const char *cmd, int c, char **argv)
 	return CLI_EXIT_USAGE;
 }
 
-int cli_parse_int(const char *s, long long min, long long max,
-                  long long *out)
+int cli_parse_int(const char *s, long long min, long long max, long long *out)
 {
 	char *end;
 	long long v;
@@ -130,10 +131,9 @@ int cli_parse_time(const char *s, int64_t *out)
 static int check_parse(int argc, char **argv, const char **path)
 {
 	static const struct option opts[] = {
-		{ "config", required_argument, NULL, 'c' },
-		{ "help", no_argument, NULL, 'h' },
-		{ NULL, 0, NULL, 0 }
-	};
+	    {"config", required_argument, NULL, 'c'},
+	    {"help", no_argument, NULL, 'h'},
+	    {NULL, 0, NULL, 0}};
 	int c;
 
 	opterr = 0;
@@ -152,7 +152,8 @@ static int check_parse(int argc, char **argv, const char **path)
 	}
 	if (optind < argc) {
 		log_err("check: unexpected argument '%s'; see 'tidepost help "
-		        "check'", argv[optind]);
+		        "check'",
+		        argv[optind]);
 		return CLI_EXIT_USAGE;
 	}
 	if (*path == NULL) {

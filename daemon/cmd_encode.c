@@ -47,45 +47,45 @@
 #include "cli.h"
 #include "log.h"
 
-#define CSV_ROW_MAX (64 * 1024) /* bytes of one row, at most */
-#define CSV_COLS_MAX 1024       /* cells of one row, at most */
-#define ENC_MAX_WARN 20         /* clamping warnings before going quiet */
-#define COL_IGNORE (-1)  /* a column encode does not use */
-#define COL_UNKNOWN (-2) /* not a column of any loaded layout: an error */
-#define COL_OTHER (-3)   /* a field of another layout: must stay empty */
+#define CSV_ROW_MAX  (64 * 1024) /* bytes of one row, at most */
+#define CSV_COLS_MAX 1024        /* cells of one row, at most */
+#define ENC_MAX_WARN 20          /* clamping warnings before going quiet */
+#define COL_IGNORE   (-1)        /* a column encode does not use */
+#define COL_UNKNOWN  (-2) /* not a column of any loaded layout: an error */
+#define COL_OTHER    (-3) /* a field of another layout: must stay empty */
 
 const char cmd_encode_usage[] =
-	"usage: tidepost encode [-c CONFIG | -l LAYOUT ...] [--layout NAME]\n"
-	"                       [--framing F] [FILE | -]\n"
-	"\n"
-	"Read readings as CSV (RFC 4180; the first row names the columns)\n"
-	"and write packets of one layout, framed, on stdout.  Columns are\n"
-	"field names; station may be a station name of the config, time an\n"
-	"RFC 3339 time or Unix seconds; an empty cell is a missing value.\n"
-	"The output of 'tidepost decode --format csv' is accepted: id,\n"
-	"layout, received and *_flag columns are ignored.  Rows are grouped\n"
-	"into packets by the layout's records (see the README).\n"
-	"\n"
-	"  -c, --config CONFIG   layouts and station names from a config\n"
-	"  -l, --layout-file L   a layout file (repeat for several)\n"
-	"  --layout NAME         the layout to encode (when several are)\n"
-	"  --framing F           cobs (default), slip, hex, whole, fixed:N\n"
-	"  -h, --help            this text\n"
-	"\n"
-	"Exit status: 0 packets written, 1 a bad row (its line and column\n"
-	"are named) or no rows, 2 usage, config or I/O error.\n";
+    "usage: tidepost encode [-c CONFIG | -l LAYOUT ...] [--layout NAME]\n"
+    "                       [--framing F] [FILE | -]\n"
+    "\n"
+    "Read readings as CSV (RFC 4180; the first row names the columns)\n"
+    "and write packets of one layout, framed, on stdout.  Columns are\n"
+    "field names; station may be a station name of the config, time an\n"
+    "RFC 3339 time or Unix seconds; an empty cell is a missing value.\n"
+    "The output of 'tidepost decode --format csv' is accepted: id,\n"
+    "layout, received and *_flag columns are ignored.  Rows are grouped\n"
+    "into packets by the layout's records (see the README).\n"
+    "\n"
+    "  -c, --config CONFIG   layouts and station names from a config\n"
+    "  -l, --layout-file L   a layout file (repeat for several)\n"
+    "  --layout NAME         the layout to encode (when several are)\n"
+    "  --framing F           cobs (default), slip, hex, whole, fixed:N\n"
+    "  -h, --help            this text\n"
+    "\n"
+    "Exit status: 0 packets written, 1 a bad row (its line and column\n"
+    "are named) or no rows, 2 usage, config or I/O error.\n";
 
 /* One CSV row being read: cells NUL-terminated in text. */
 struct csv_in {
 	FILE *fp;
 	const char *name;
-	unsigned long line;      /* physical line being read, from 1 */
-	unsigned long row_line;  /* line where the current row starts */
+	unsigned long line;     /* physical line being read, from 1 */
+	unsigned long row_line; /* line where the current row starts */
 	char text[CSV_ROW_MAX];
 	size_t len;
 	size_t cell[CSV_COLS_MAX];
-	size_t n;                /* cells in the row */
-	const char *err;         /* why csv_read failed */
+	size_t n;        /* cells in the row */
+	const char *err; /* why csv_read failed */
 };
 
 struct enc {
@@ -94,18 +94,18 @@ struct enc {
 	enum tp_framing framing;
 	size_t fixed_n;
 	struct csv_in in;
-	char *names;             /* copy of the header row's text */
+	char *names; /* copy of the header row's text */
 	size_t name_at[CSV_COLS_MAX];
-	int col[CSV_COLS_MAX];   /* value slot of each column, or COL_* */
+	int col[CSV_COLS_MAX]; /* value slot of each column, or COL_* */
 	size_t n_cols;
 	int time_slot, station_slot, seq_slot; /* header slots, or -1 */
-	int offset_j;            /* record time_offset field, or -1 */
-	bool offset_col;         /* ... and it has a column */
+	int offset_j;    /* record time_offset field, or -1 */
+	bool offset_col; /* ... and it has a column */
 	struct tp_value row[TP_MAX_VALUES]; /* the current row, by slot */
 	struct tp_value pin[TP_MAX_FIELDS]; /* values set by match tests */
 	bool pinned[TP_MAX_FIELDS];         /* for header fields w/o column */
 	struct tp_value head[TP_MAX_FIELDS];
-	struct tp_value *recs;   /* max_recs rows of records.n_fields */
+	struct tp_value *recs; /* max_recs rows of records.n_fields */
 	uint32_t n_recs, max_recs;
 	unsigned long first_line; /* line of the packet's first row */
 	uint64_t packets;
@@ -249,7 +249,7 @@ static const char *col_name(const struct enc *e, size_t i)
 
 /* An error about row cell i: "encode: FILE:LINE: column NAME: ...". */
 static int row_err(const struct enc *e, size_t i, const char *fmt, ...)
-	__attribute__((format(printf, 3, 4)));
+    __attribute__((format(printf, 3, 4)));
 
 static int row_err(const struct enc *e, size_t i, const char *fmt, ...)
 {
@@ -416,8 +416,8 @@ static bool match_value(const struct tp_layout *l, size_t i, double *v)
 		m = &l->match[j];
 		if (m->at >= 0 && (uint64_t)m->at * 8 == at &&
 		    match_bits(m->type) == f->bits &&
-		    f->role == TP_ROLE_VALUE &&
-		    f->type != TP_T_F32 && f->type != TP_T_F64) {
+		    f->role == TP_ROLE_VALUE && f->type != TP_T_F32 &&
+		    f->type != TP_T_F64) {
 			*v = (double)m->is * (f->scale == 0 ? 1 : f->scale) +
 			     f->offset;
 			return true;
@@ -433,11 +433,11 @@ static void enc_pins(struct enc *e)
 	double v;
 
 	for (i = 0; i < e->l->n_fields; i++) {
-		e->pinned[i] = !has_column(e, (int)i) &&
-		               match_value(e->l, i, &v);
+		e->pinned[i] =
+		    !has_column(e, (int)i) && match_value(e->l, i, &v);
 		if (e->pinned[i])
-			e->pin[i] = (struct tp_value){ .v = v,
-			                               .flag = TP_FLAG_PASS };
+			e->pin[i] =
+			    (struct tp_value){.v = v, .flag = TP_FLAG_PASS};
 	}
 }
 
@@ -461,10 +461,12 @@ static int enc_required(struct enc *e)
 		     f->type == TP_T_F64))
 			continue;
 		log_err("encode: %s:%lu: no column for the %s field '%s' of "
-		        "layout %s%s", e->in.name, e->in.row_line,
-		        role_name(f->role), f->name, e->l->name,
+		        "layout %s%s",
+		        e->in.name, e->in.row_line, role_name(f->role), f->name,
+		        e->l->name,
 		        f->role == TP_ROLE_VALUE
-		                ? ", and it has no missing value" : "");
+		            ? ", and it has no missing value"
+		            : "");
 		return -1;
 	}
 	return 0;
@@ -532,7 +534,8 @@ static int parse_number(const char *s, double *out)
 	errno = 0;
 	*out = strtod(s, &end);
 	return end != s && *end == '\0' && errno != ERANGE && isfinite(*out)
-	               ? 0 : -1;
+	           ? 0
+	           : -1;
 }
 
 /* A station number, or the number of a station name in the config. */
@@ -556,8 +559,7 @@ static int parse_station(const struct enc *e, const char *s, double *out)
 }
 
 /* An empty cell: fine for a value with `missing` (or a float, NaN). */
-static int check_null(const struct enc *e, size_t i,
-                      const struct tp_field *f)
+static int check_null(const struct enc *e, size_t i, const struct tp_field *f)
 {
 	int s = e->col[i];
 
@@ -601,15 +603,17 @@ static int check_fit(struct enc *e, size_t i, const struct tp_field *f,
 		if (e->warned++ < ENC_MAX_WARN)
 			log_warn("encode: %s:%lu: column %s: %s does not fit "
 			         "the field (%u bits, scale %g, offset %g); "
-			         "clamped", e->in.name, e->in.row_line,
-			         col_name(e, i), cell(&e->in, i),
-			         (unsigned)f->bits, scale, f->offset);
+			         "clamped",
+			         e->in.name, e->in.row_line, col_name(e, i),
+			         cell(&e->in, i), (unsigned)f->bits, scale,
+			         f->offset);
 		return 0;
 	}
 	mask = f->bits == 64 ? UINT64_MAX : ((uint64_t)1 << f->bits) - 1;
 	raw = is_signed_field(f) ? (uint64_t)(int64_t)x : (uint64_t)x;
 	if (f->has_missing && ((raw ^ f->missing) & mask) == 0)
-		return row_err(e, i, "%s encodes as the field's missing value "
+		return row_err(e, i,
+		               "%s encodes as the field's missing value "
 		               "(raw %llu) and would read back as null",
 		               cell(&e->in, i), (unsigned long long)f->missing);
 	return 0;
@@ -630,21 +634,27 @@ static int parse_cell(struct enc *e, size_t i)
 	if (f->role == TP_ROLE_STATION) {
 		rc = parse_station(e, s, &v->v);
 		if (rc < 0)
-			return row_err(e, i, "'%s' is not a station number or "
-			               "a station name of the config", s);
+			return row_err(e, i,
+			               "'%s' is not a station number or "
+			               "a station name of the config",
+			               s);
 	} else if (f->role == TP_ROLE_TIME) {
 		rc = cli_parse_time(s, &t);
 		v->v = (double)t;
 		if (rc < 0)
-			return row_err(e, i, "'%s' is not a time (RFC 3339 "
+			return row_err(e, i,
+			               "'%s' is not a time (RFC 3339 "
 			               "like 2026-11-30T06:15:00Z, or Unix "
-			               "seconds)", s);
+			               "seconds)",
+			               s);
 	} else if (f->role == TP_ROLE_SEQ) {
 		rc = cli_parse_int(s, 0, INT64_MAX, &n);
 		v->v = (double)n;
 		if (rc < 0)
-			return row_err(e, i, "'%s' is not a counter (a whole "
-			               "number >= 0)", s);
+			return row_err(e, i,
+			               "'%s' is not a counter (a whole "
+			               "number >= 0)",
+			               s);
 	} else if (parse_number(s, &v->v) < 0) {
 		return row_err(e, i, "'%s' is not a number", s);
 	}
@@ -659,22 +669,23 @@ static int enc_row_values(struct enc *e)
 
 	if (e->in.n != e->n_cols) {
 		log_err("encode: %s:%lu: %zu cells, but the header has %zu "
-		        "columns", e->in.name, e->in.row_line, e->in.n,
-		        e->n_cols);
+		        "columns",
+		        e->in.name, e->in.row_line, e->in.n, e->n_cols);
 		return -1;
 	}
 	for (i = 0; i < n; i++)
-		e->row[i] = (struct tp_value){ .v = NAN,
-		                               .flag = TP_FLAG_MISSING };
+		e->row[i] =
+		    (struct tp_value){.v = NAN, .flag = TP_FLAG_MISSING};
 	for (i = 0; i < e->l->n_fields; i++) {
 		if (e->pinned[i])
 			e->row[i] = e->pin[i];
 	}
 	for (i = 0; i < e->n_cols; i++) {
 		if (e->col[i] == COL_OTHER && cell(&e->in, i)[0] != '\0')
-			return row_err(e, i, "'%s': a field of another "
-			               "layout, not of %s", cell(&e->in, i),
-			               e->l->name);
+			return row_err(e, i,
+			               "'%s': a field of another "
+			               "layout, not of %s",
+			               cell(&e->in, i), e->l->name);
 		if (e->col[i] >= 0 && parse_cell(e, i) < 0)
 			return -1;
 	}
@@ -758,10 +769,11 @@ static int flush_packet(struct enc *e)
 	if ((e->framing == TP_FRAMING_WHOLE && e->packets > 0) ||
 	    (e->framing == TP_FRAMING_FIXED && len != e->fixed_n)) {
 		log_err("encode: %s:%lu: framing %s cannot hold this packet "
-		        "(%s; %zu bytes)", e->in.name, e->first_line,
-		        tp_framing_name(e->framing),
-		        e->framing == TP_FRAMING_WHOLE
-		                ? "it holds one packet" : "wrong size", len);
+		        "(%s; %zu bytes)",
+		        e->in.name, e->first_line, tp_framing_name(e->framing),
+		        e->framing == TP_FRAMING_WHOLE ? "it holds one packet"
+		                                       : "wrong size",
+		        len);
 		return -1;
 	}
 	st = tp_frame_encode(e->framing, e->pkt, len, e->framed,
@@ -856,13 +868,12 @@ struct enc_opts {
 static int enc_parse(struct enc_opts *o, int argc, char **argv)
 {
 	static const struct option opts[] = {
-		{ "config", required_argument, NULL, 'c' },
-		{ "layout-file", required_argument, NULL, 'l' },
-		{ "layout", required_argument, NULL, CLI_OPT_LAYOUT },
-		{ "framing", required_argument, NULL, CLI_OPT_FRAMING },
-		{ "help", no_argument, NULL, 'h' },
-		{ NULL, 0, NULL, 0 }
-	};
+	    {"config", required_argument, NULL, 'c'},
+	    {"layout-file", required_argument, NULL, 'l'},
+	    {"layout", required_argument, NULL, CLI_OPT_LAYOUT},
+	    {"framing", required_argument, NULL, CLI_OPT_FRAMING},
+	    {"help", no_argument, NULL, 'h'},
+	    {NULL, 0, NULL, 0}};
 	int c;
 
 	opterr = 0;
@@ -906,16 +917,16 @@ static const struct tp_layout *pick_layout(const struct config *cfg,
 		if (name != NULL && strcmp(cfg->layouts[i].name, name) == 0)
 			return &cfg->layouts[i];
 		if (len < sizeof(names))
-			len += (size_t)snprintf(names + len,
-			                        sizeof(names) - len, "%s%s",
-			                        i ? ", " : "",
-			                        cfg->layouts[i].name);
+			len += (size_t)snprintf(
+			    names + len, sizeof(names) - len, "%s%s",
+			    i ? ", " : "", cfg->layouts[i].name);
 	}
 	if (name == NULL && cfg->n_layouts == 1)
 		return &cfg->layouts[0];
 	if (name == NULL)
 		log_err("encode: %zu layouts loaded (%s): choose one with "
-		        "--layout NAME", cfg->n_layouts, names);
+		        "--layout NAME",
+		        cfg->n_layouts, names);
 	else
 		log_err("encode: --layout %s: not loaded; loaded: %s", name,
 		        names);
@@ -932,8 +943,8 @@ static int enc_setup(struct enc *e, const struct enc_opts *o)
 	    (tp_framing_parse(o->framing, &e->framing, &e->fixed_n) != TP_OK ||
 	     (e->framing == TP_FRAMING_FIXED && e->fixed_n > TP_MAX_PACKET))) {
 		log_err("encode: --framing %s: not a framing; valid: cobs, "
-		        "slip, hex, whole, fixed:N (N 1..%d)", o->framing,
-		        TP_MAX_PACKET);
+		        "slip, hex, whole, fixed:N (N 1..%d)",
+		        o->framing, TP_MAX_PACKET);
 		return -1;
 	}
 	e->l = pick_layout(e->cfg, o->layout);
@@ -949,8 +960,8 @@ static int enc_setup(struct enc *e, const struct enc_opts *o)
 			e->offset_j = (int)j;
 	}
 	e->max_recs = max_records(e->l);
-	e->recs = calloc((size_t)e->max_recs * (nr ? nr : 1),
-	                 sizeof(e->recs[0]));
+	e->recs =
+	    calloc((size_t)e->max_recs * (nr ? nr : 1), sizeof(e->recs[0]));
 	if (e->recs == NULL) {
 		log_err("encode: start: %s", strerror(errno));
 		return -1;

@@ -52,7 +52,7 @@ void log_set_level(enum log_level lvl)
 }
 
 static void log_emit(enum log_level lvl, const char *fmt, va_list ap)
-	__attribute__((format(printf, 2, 0)));
+    __attribute__((format(printf, 2, 0)));
 
 static void log_emit(enum log_level lvl, const char *fmt, va_list ap)
 {

@@ -25,7 +25,7 @@ struct loop {
 	int n_w;
 	struct loop_timer *t[LOOP_MAX_TIMERS];
 	int n_t;
-	unsigned gen;              /* bumped on every watch change */
+	unsigned gen; /* bumped on every watch change */
 };
 
 struct loop *loop_new(const struct clock *c)
@@ -65,8 +65,7 @@ static int find_fd(const struct loop *l, int fd)
 	return -1;
 }
 
-int loop_watch(struct loop *l, int fd, short events, loop_fd_fn fn,
-               void *arg)
+int loop_watch(struct loop *l, int fd, short events, loop_fd_fn fn, void *arg)
 {
 	int i = find_fd(l, fd);
 

@@ -27,31 +27,31 @@
 
 #include "tidepost/check.h"
 
-#define SLOT_BYTES 4096u
-#define DATA_START 8192u
-#define SLOT_CRC_AT 400u
-#define OUT_AT 80u
-#define OUT_BYTES 40u
-#define HDR 24u                     /* record header */
-#define REC_MAX 4096u               /* HDR + RING_PAYLOAD_MAX */
-#define STAGE_MAX 65536u
-#define RBUF_BYTES 65536u
+#define SLOT_BYTES     4096u
+#define DATA_START     8192u
+#define SLOT_CRC_AT    400u
+#define OUT_AT         80u
+#define OUT_BYTES      40u
+#define HDR            24u   /* record header */
+#define REC_MAX        4096u /* HDR + RING_PAYLOAD_MAX */
+#define STAGE_MAX      65536u
+#define RBUF_BYTES     65536u
 #define SIZE_MAX_BYTES (1ull << 40)
-#define SLOT_MAGIC 0x48525054u      /* "TPRH" */
-#define REC_MAGIC 0x43525054u       /* "TPRC" */
-#define VERSION 1u
+#define SLOT_MAGIC     0x48525054u /* "TPRH" */
+#define REC_MAGIC      0x43525054u /* "TPRC" */
+#define VERSION        1u
 
 enum { T_DATA = 1, T_WRAP = 2, T_GAP = 3 };
 enum { RK_BAD = 0, RK_DATA, RK_WRAP, RK_GAP };
 
-int ring_test_ack_before_sync = 0;   /* TEST-ONLY: see ring.h */
+int ring_test_ack_before_sync = 0; /* TEST-ONLY: see ring.h */
 
 /* CRC-32/ISCSI (CRC-32C), parameters and check value as listed in the CRC
  * RevEng catalogue (Greg Cook): width 32, poly 0x1edc6f41, init and
  * xorout 0xffffffff, reflected in and out, check 0xe3069283. */
 static const struct tp_crc_params crc32c_params = {
-	"CRC-32/ISCSI", 32, 0x1edc6f41u, 0xffffffffu, true, true,
-	0xffffffffu, 0xe3069283u,
+    "CRC-32/ISCSI", 32,   0x1edc6f41u, 0xffffffffu,
+    true,           true, 0xffffffffu, 0xe3069283u,
 };
 
 /* A place in the data area and the seq the scanner expects there. */
@@ -69,16 +69,16 @@ struct out {
 /* One header slot, decoded. */
 struct hdr {
 	uint64_t gen, size, dstart, next_seq;
-	struct pos tail, head;      /* head: the hint, head.seq == next_seq */
+	struct pos tail, head; /* head: the hint, head.seq == next_seq */
 	size_t n_outs;
 	struct out outs[RING_OUTPUTS_MAX];
 };
 
 struct stage {
-	size_t seg0, seg1;          /* bytes at the head / at data start */
-	size_t n;                   /* records staged */
-	int wrapped;                /* later records go to seg1 */
-	struct pos head;            /* where the next staged record goes */
+	size_t seg0, seg1; /* bytes at the head / at data start */
+	size_t n;          /* records staged */
+	int wrapped;       /* later records go to seg1 */
+	struct pos head;   /* where the next staged record goes */
 };
 
 struct rview {
@@ -86,7 +86,7 @@ struct rview {
 	size_t len, bytes;
 	uint64_t seq;
 	const unsigned char *payload;
-	const char *why;            /* for RK_BAD */
+	const char *why; /* for RK_BAD */
 };
 
 struct ring {
@@ -95,19 +95,19 @@ struct ring {
 	char *path;
 	uint64_t size, dstart;
 	struct tp_crc crc;
-	uint64_t gen;               /* last durable header */
-	int dslot;                  /* its slot */
-	struct pos tail, head;      /* durable tail, committed head */
-	uint64_t gap_to;            /* seq to jump to (GAP), 0: none */
+	uint64_t gen;          /* last durable header */
+	int dslot;             /* its slot */
+	struct pos tail, head; /* durable tail, committed head */
+	uint64_t gap_to;       /* seq to jump to (GAP), 0: none */
 	size_t n_outs;
 	struct out outs[RING_OUTPUTS_MAX];
 	unsigned char *stage;
 	size_t stage_cap;
 	struct stage st;
-	int owed_sync;              /* mutation switch only */
+	int owed_sync; /* mutation switch only */
 	uint64_t refused, lost, recovery_us;
 	int failed;
-	struct pos rhint;           /* ring_read: after the last read */
+	struct pos rhint; /* ring_read: after the last read */
 	unsigned char *rbuf;
 	uint64_t rb_off;
 	size_t rb_len;
@@ -295,8 +295,7 @@ static const char *hdr_check(const struct ring *r, const struct pos *p,
 
 /* Read and check the record at p; crc: also check the CRC.  Returns an
  * RK_ kind (RK_BAD with v->why) or -1 on an I/O error. */
-static int rec_at(struct ring *r, const struct pos *p, int crc,
-                  struct rview *v)
+static int rec_at(struct ring *r, const struct pos *p, int crc, struct rview *v)
 {
 	const unsigned char *b;
 
@@ -312,8 +311,9 @@ static int rec_at(struct ring *r, const struct pos *p, int crc,
 		v->why = "record CRC mismatch";
 		return RK_BAD;
 	}
-	return v->type == T_DATA ? RK_DATA : v->type == T_WRAP ? RK_WRAP
-	                                                       : RK_GAP;
+	return v->type == T_DATA   ? RK_DATA
+	       : v->type == T_WRAP ? RK_WRAP
+	                           : RK_GAP;
 }
 
 /* Move p over the record there (if valid); returns its kind, -1 on I/O. */
@@ -352,7 +352,7 @@ static int scan(struct ring *r, struct pos *p, uint64_t *n)
 		*n += k == RK_DATA;
 		moved += k == RK_WRAP ? r->size - before : v.bytes;
 		if (moved > data_bytes(r))
-			return 0;       /* cannot happen with the lap check */
+			return 0; /* cannot happen with the lap check */
 	}
 }
 
@@ -377,8 +377,8 @@ static int walk(struct ring *r, struct pos *p, uint64_t target)
 
 /* ---- header slots ---- */
 
-static void slot_encode(const struct ring *r, const struct hdr *h,
-                        int slot, unsigned char *b)
+static void slot_encode(const struct ring *r, const struct hdr *h, int slot,
+                        unsigned char *b)
 {
 	size_t i;
 
@@ -486,7 +486,7 @@ static int hdr_tail(struct ring *r, struct hdr *h)
 	size_t i;
 
 	if (h->n_outs == 0)
-		return 0;           /* nobody frees anything */
+		return 0; /* nobody frees anything */
 	for (i = 0; i < h->n_outs; i++)
 		if (h->outs[i].acked < min)
 			min = h->outs[i].acked;
@@ -519,8 +519,9 @@ static int hdr_commit(struct ring *r, const struct hdr *h)
 static int dir_of(const char *path, char *dir, size_t cap)
 {
 	const char *slash = strrchr(path, '/');
-	size_t n = slash == NULL ? 0 : slash == path ? 1
-	                                             : (size_t)(slash - path);
+	size_t n = slash == NULL   ? 0
+	           : slash == path ? 1
+	                           : (size_t)(slash - path);
 
 	if (n + 2 > cap) {
 		errno = ENAMETOOLONG;
@@ -534,8 +535,7 @@ static int dir_of(const char *path, char *dir, size_t cap)
 	return 0;
 }
 
-static int space_check(struct ring *r, const char *path, char *err,
-                       size_t cap)
+static int space_check(struct ring *r, const char *path, char *err, size_t cap)
 {
 	char dir[PATH_MAX], cause[160];
 	uint64_t avail;
@@ -547,9 +547,10 @@ static int space_check(struct ring *r, const char *path, char *err,
 	}
 	if (avail >= r->size)
 		return 0;
-	snprintf(cause, sizeof cause, "needs %llu bytes but the filesystem "
-	         "has only %llu free", (unsigned long long)r->size,
-	         (unsigned long long)avail);
+	snprintf(cause, sizeof cause,
+	         "needs %llu bytes but the filesystem "
+	         "has only %llu free",
+	         (unsigned long long)r->size, (unsigned long long)avail);
 	msg(err, cap, "create", path, cause);
 	errno = ENOSPC;
 	return -1;
@@ -575,7 +576,7 @@ static int fill_new(struct ring *r, int fd)
 	h.size = r->size;
 	h.dstart = DATA_START;
 	h.next_seq = 1;
-	h.tail = (struct pos){ DATA_START, 1, 1 };
+	h.tail = (struct pos){DATA_START, 1, 1};
 	h.head = h.tail;
 	for (s = 0; s < 2; s++) {
 		h.gen = (uint64_t)s;
@@ -620,7 +621,7 @@ out_msg:
 	if (fd >= 0)
 		(void)r->ops->close(r->ops->ctx, fd);
 	if (ringio_unlink(r->ops, tmp) != 0)
-		saved = saved ? saved : errno;  /* keep the first cause */
+		saved = saved ? saved : errno; /* keep the first cause */
 	errno = saved;
 out_free:
 	saved = errno;
@@ -770,9 +771,11 @@ static int geometry(struct ring *r, uint64_t want, char *err, size_t cap)
 		return -1;
 	}
 	if ((want != 0 && have != want) || !size_ok(have)) {
-		snprintf(cause, sizeof cause, "the file has %llu bytes, %s %llu;"
+		snprintf(cause, sizeof cause,
+		         "the file has %llu bytes, %s %llu;"
 		         " a ring is never resized or re-initialised: move it "
-		         "away to start a new one", (unsigned long long)have,
+		         "away to start a new one",
+		         (unsigned long long)have,
 		         want ? "expected" : "not a ring size, e.g.",
 		         (unsigned long long)(want ? want : RING_SIZE_MIN));
 		msg(err, cap, "open", r->path, cause);
@@ -781,8 +784,9 @@ static int geometry(struct ring *r, uint64_t want, char *err, size_t cap)
 	}
 	r->size = have;
 	r->dstart = DATA_START;
-	r->stage_cap = (size_t)(data_bytes(r) / 4 < STAGE_MAX ?
-	                        data_bytes(r) / 4 : STAGE_MAX);
+	r->stage_cap =
+	    (size_t)(data_bytes(r) / 4 < STAGE_MAX ? data_bytes(r) / 4
+	                                           : STAGE_MAX);
 	return 0;
 }
 
@@ -818,8 +822,8 @@ static int open_file(struct ring *r, uint64_t want, char *err, size_t cap)
 	return geometry(r, want, err, cap);
 }
 
-static int load_slots(struct ring *r, struct hdr *best, int *slot,
-                      char *err, size_t cap)
+static int load_slots(struct ring *r, struct hdr *best, int *slot, char *err,
+                      size_t cap)
 {
 	struct hdr h[2];
 	const char *why[2];
@@ -835,16 +839,16 @@ static int load_slots(struct ring *r, struct hdr *best, int *slot,
 		why[s] = slot_decode(r, r->slot, s, &h[s]);
 	}
 	if (why[0] != NULL && why[1] != NULL) {
-		snprintf(cause, sizeof cause, "both header slots are invalid "
+		snprintf(cause, sizeof cause,
+		         "both header slots are invalid "
 		         "(slot 0: %s; slot 1: %s); refusing to start over: "
-		         "move the file away to begin a new ring", why[0],
-		         why[1]);
+		         "move the file away to begin a new ring",
+		         why[0], why[1]);
 		msg(err, cap, "open", r->path, cause);
 		errno = EBADMSG;
 		return -1;
 	}
-	s = why[0] != NULL ? 1 : why[1] != NULL ? 0
-	                                        : h[1].gen > h[0].gen;
+	s = why[0] != NULL ? 1 : why[1] != NULL ? 0 : h[1].gen > h[0].gen;
 	*best = h[s];
 	*slot = s;
 	return 0;
@@ -860,8 +864,8 @@ static uint64_t now_us(void)
 }
 
 int ring_open(const char *path, uint64_t size_bytes,
-              const struct ringio_ops *ops, struct ring **out,
-              char *errbuf, size_t errcap)
+              const struct ringio_ops *ops, struct ring **out, char *errbuf,
+              size_t errcap)
 {
 	struct ring *r;
 	struct hdr h;
@@ -872,7 +876,8 @@ int ring_open(const char *path, uint64_t size_bytes,
 	if (errbuf != NULL && errcap != 0)
 		errbuf[0] = '\0';
 	if (path == NULL || (size_bytes != 0 && !size_ok(size_bytes))) {
-		msg(errbuf, errcap, "open", path ? path : "(null)", "size must "
+		msg(errbuf, errcap, "open", path ? path : "(null)",
+		    "size must "
 		    "be a multiple of 4096 bytes, at least 40960");
 		errno = EINVAL;
 		return -1;
@@ -985,7 +990,7 @@ int ring_outputs(struct ring *r, const char *const *names, size_t n)
 		h.outs[i].acked = j >= 0 ? r->outs[j].acked : r->tail.seq - 1;
 	}
 	if (kept == n && n == r->n_outs)
-		return 0;           /* same set: nothing to make durable */
+		return 0; /* same set: nothing to make durable */
 	if (hdr_tail(r, &h) != 0)
 		return -1;
 	return hdr_commit(r, &h);
@@ -1037,7 +1042,7 @@ int ring_ack(struct ring *r, const char *output, uint64_t seq)
 static bool fits(const struct ring *r, const struct pos *p, size_t need,
                  int wrap)
 {
-	uint32_t ahead = p->lap - r->tail.lap;  /* 0 or 1 lap ahead */
+	uint32_t ahead = p->lap - r->tail.lap; /* 0 or 1 lap ahead */
 
 	if (!wrap)
 		return ahead == 0 || p->off + need <= r->tail.off;
@@ -1066,8 +1071,8 @@ static enum ring_rc stage_put(struct ring *r, int type, uint64_t seq,
 		p.lap++;
 		s->wrapped = 1;
 	}
-	rec_encode(r, r->stage + s->seg0 + s->seg1, type, p.lap, seq,
-	           payload, len);
+	rec_encode(r, r->stage + s->seg0 + s->seg1, type, p.lap, seq, payload,
+	           len);
 	*(s->wrapped ? &s->seg1 : &s->seg0) += need;
 	p.off += need;
 	p.seq = type == T_DATA ? seq + 1 : seq;
@@ -1117,11 +1122,11 @@ int ring_commit(struct ring *r, uint64_t *last_seq)
 	r->owed_sync = 0;
 	if (s->seg0 + s->seg1 != 0) {
 		if ((s->seg0 && wr(r, r->stage, s->seg0, r->head.off) != 0) ||
-		    (s->seg1 && wr(r, r->stage + s->seg0, s->seg1,
-		                   r->dstart) != 0))
+		    (s->seg1 &&
+		     wr(r, r->stage + s->seg0, s->seg1, r->dstart) != 0))
 			return fail(r, errno);
 		if (ring_test_ack_before_sync)
-			r->owed_sync = 1;   /* TEST-ONLY mutant: no sync now */
+			r->owed_sync = 1; /* TEST-ONLY mutant: no sync now */
 		else if (ringio_datasync(r->ops, r->fd) != 0)
 			return fail(r, errno);
 		/* durable (or, in the mutant, pretended so): accepted */
@@ -1178,8 +1183,7 @@ static int read_data(struct ring *r, struct pos *p, void *buf, size_t cap,
 	return 0;
 }
 
-int ring_read(struct ring *r, uint64_t seq, void *buf, size_t cap,
-              size_t *len)
+int ring_read(struct ring *r, uint64_t seq, void *buf, size_t cap, size_t *len)
 {
 	struct pos p = r->tail;
 	uint64_t got;
@@ -1191,11 +1195,10 @@ int ring_read(struct ring *r, uint64_t seq, void *buf, size_t cap,
 	if (r->rhint.seq != 0 && r->rhint.seq >= r->tail.seq &&
 	    r->rhint.seq <= seq)
 		p = r->rhint;
-	if (walk(r, &p, seq) != 0 || read_data(r, &p, buf, cap, len,
-	                                       &got) != 0)
+	if (walk(r, &p, seq) != 0 || read_data(r, &p, buf, cap, len, &got) != 0)
 		return -1;
 	if (got != seq) {
-		errno = ENOENT;     /* seq fell in a GAP */
+		errno = ENOENT; /* seq fell in a GAP */
 		return -1;
 	}
 	r->rhint = p;
@@ -1208,13 +1211,13 @@ void ring_iter_init(struct ring_iter *it, uint64_t after_seq)
 	it->seq = after_seq + 1;
 }
 
-int ring_iter_next(struct ring *r, struct ring_iter *it, void *buf,
-                   size_t cap, size_t *len, uint64_t *seq)
+int ring_iter_next(struct ring *r, struct ring_iter *it, void *buf, size_t cap,
+                   size_t *len, uint64_t *seq)
 {
 	struct pos p = r->tail;
 
 	if (it->known && it->seq < r->tail.seq) {
-		errno = ENOENT;     /* freed under the reader */
+		errno = ENOENT; /* freed under the reader */
 		return -1;
 	}
 	if (it->seq >= r->head.seq)
@@ -1274,8 +1277,8 @@ static void problem(struct ring_verify_report *rep, const char *what,
 	if (rep->problems++ == 0)
 		snprintf(rep->first, sizeof rep->first,
 		         "%s at offset %llu (seq %llu): %s", what,
-		         (unsigned long long)p->off,
-		         (unsigned long long)p->seq, why);
+		         (unsigned long long)p->off, (unsigned long long)p->seq,
+		         why);
 }
 
 int ring_verify(struct ring *r, struct ring_verify_report *rep)

@@ -116,20 +116,20 @@ static int px_drop_cache(void *ctx, int fd)
 }
 
 static const struct ringio_ops posix_ops = {
-	.ctx = NULL,
-	.open = px_open,
-	.pread = px_pread,
-	.pwrite = px_pwrite,
-	.fdatasync = px_fdatasync,
-	.fsync = px_fsync,
-	.ftruncate = px_ftruncate,
-	.close = px_close,
-	.rename = px_rename,
-	.unlink = px_unlink,
-	.size = px_size,
-	.lock = px_lock,
-	.free_bytes = px_free_bytes,
-	.drop_cache = px_drop_cache,
+    .ctx = NULL,
+    .open = px_open,
+    .pread = px_pread,
+    .pwrite = px_pwrite,
+    .fdatasync = px_fdatasync,
+    .fsync = px_fsync,
+    .ftruncate = px_ftruncate,
+    .close = px_close,
+    .rename = px_rename,
+    .unlink = px_unlink,
+    .size = px_size,
+    .lock = px_lock,
+    .free_bytes = px_free_bytes,
+    .drop_cache = px_drop_cache,
 };
 
 const struct ringio_ops *ringio_posix(void)
@@ -153,7 +153,7 @@ int ringio_read_all(const struct ringio_ops *o, int fd, void *buf, size_t n,
 		if (r < 0)
 			return -1;
 		if (r == 0) {
-			errno = EIO;        /* the file is shorter than it must be */
+			errno = EIO; /* the file is shorter than it must be */
 			return -1;
 		}
 		done += (size_t)r;
@@ -175,7 +175,7 @@ int ringio_write_all(const struct ringio_ops *o, int fd, const void *buf,
 		if (r < 0)
 			return -1;
 		if (r == 0) {
-			errno = EIO;        /* no progress: do not spin */
+			errno = EIO; /* no progress: do not spin */
 			return -1;
 		}
 		done += (size_t)r;
@@ -228,8 +228,7 @@ int ringio_unlink(const struct ringio_ops *o, const char *path)
 	return r;
 }
 
-int ringio_rename(const struct ringio_ops *o, const char *from,
-                  const char *to)
+int ringio_rename(const struct ringio_ops *o, const char *from, const char *to)
 {
 	int r;
 
@@ -301,18 +300,18 @@ int ringio_sync_dir(const struct ringio_ops *o, const char *path)
 
 /* ---- memdisk ---- */
 
-#define MD_FILES 32
-#define MD_NAMES 32
-#define MD_FDS 32
-#define MD_FD_BASE 100
+#define MD_FILES    32
+#define MD_NAMES    32
+#define MD_FDS      32
+#define MD_FD_BASE  100
 #define MD_NAME_CAP 256
-#define MD_SECTOR 512u
-#define MD_DIR_INO (-2)
+#define MD_SECTOR   512u
+#define MD_DIR_INO  (-2)
 
 struct md_pend {
 	uint64_t off;
 	size_t len;
-	unsigned char *data;        /* NULL: ftruncate to `off` */
+	unsigned char *data; /* NULL: ftruncate to `off` */
 };
 
 struct md_file {
@@ -325,7 +324,7 @@ struct md_file {
 
 struct md_name {
 	char name[MD_NAME_CAP];
-	int ino;                    /* -1: free slot */
+	int ino; /* -1: free slot */
 };
 
 enum md_nskind { NS_LINK, NS_RENAME, NS_UNLINK };
@@ -338,7 +337,7 @@ struct md_nsop {
 
 struct md_fd {
 	int used;
-	int ino;                    /* MD_DIR_INO for a directory */
+	int ino; /* MD_DIR_INO for a directory */
 	int locked;
 };
 
@@ -410,7 +409,7 @@ static enum gate gate(struct memdisk *d, unsigned kind)
 		return G_GO;
 	if (f->err == MEMDISK_SHORT)
 		return (kind & (MEMDISK_PREAD | MEMDISK_PWRITE)) ? G_SHORT
-		                                                  : G_GO;
+		                                                 : G_GO;
 	errno = f->err;
 	return G_FAIL;
 }
@@ -693,7 +692,7 @@ static ssize_t md_pwrite(void *ctx, int fd, const void *buf, size_t n,
 	if (f == NULL)
 		return -1;
 	if (g == G_CUT) {
-		(void)live_write(d, f, buf, n, off);  /* in flight at the cut */
+		(void)live_write(d, f, buf, n, off); /* in flight at the cut */
 		errno = EIO;
 		return -1;
 	}
@@ -712,7 +711,7 @@ static int apply_pend(struct memdisk *d, struct md_file *f,
 	uint64_t end = p->off + (fill == -1 ? keep : p->len);
 	size_t i;
 
-	if (p->data == NULL) {          /* ftruncate */
+	if (p->data == NULL) { /* ftruncate */
 		if (grow(&f->dur, &f->dur_cap, p->off) != 0)
 			return -1;
 		if (p->off > f->dur_len)
@@ -727,8 +726,8 @@ static int apply_pend(struct memdisk *d, struct md_file *f,
 		memset(f->dur + f->dur_len, 0, (size_t)(p->off - f->dur_len));
 	memcpy(f->dur + p->off, p->data, keep);
 	for (i = keep; fill != -1 && i < p->len; i++)
-		f->dur[p->off + i] = fill == -2 ? (unsigned char)rnd(d)
-		                                : (unsigned char)fill;
+		f->dur[p->off + i] =
+		    fill == -2 ? (unsigned char)rnd(d) : (unsigned char)fill;
 	if (end > f->dur_len)
 		f->dur_len = end;
 	return 0;
@@ -856,7 +855,7 @@ static int md_close(void *ctx, int fd)
 
 	if (h == NULL)
 		return -1;
-	h->used = 0;                /* gone even when close reports failure */
+	h->used = 0; /* gone even when close reports failure */
 	g = gate(d, MEMDISK_CLOSE);
 	return g == G_GO || g == G_SHORT ? 0 : -1;
 }
@@ -1049,8 +1048,8 @@ static int file_clone(struct md_file *dst, const struct md_file *src)
 	*dst = *src;
 	dst->cur = dup_bytes(src->cur, src->cur_cap);
 	dst->dur = dup_bytes(src->dur, src->dur_cap);
-	dst->pend = src->cap_pend ? calloc(src->cap_pend, sizeof *dst->pend)
-	                          : NULL;
+	dst->pend =
+	    src->cap_pend ? calloc(src->cap_pend, sizeof *dst->pend) : NULL;
 	dst->n_pend = 0;
 	if ((src->cur_cap && !dst->cur) || (src->dur_cap && !dst->dur) ||
 	    (src->cap_pend && !dst->pend))
@@ -1061,9 +1060,8 @@ static int file_clone(struct md_file *dst, const struct md_file *src)
 		dst->n_pend = i + 1;
 		if (src->pend[i].data == NULL)
 			continue;
-		dst->pend[i].data = dup_bytes(src->pend[i].data,
-		                              src->pend[i].len ?
-		                              src->pend[i].len : 1);
+		dst->pend[i].data = dup_bytes(
+		    src->pend[i].data, src->pend[i].len ? src->pend[i].len : 1);
 		if (dst->pend[i].data == NULL)
 			return -1;
 	}
@@ -1148,8 +1146,7 @@ size_t memdisk_open_fds(const struct memdisk *d)
 	return n;
 }
 
-static const struct md_file *file_at(const struct memdisk *d,
-                                     const char *path)
+static const struct md_file *file_at(const struct memdisk *d, const char *path)
 {
 	size_t i;
 
@@ -1167,8 +1164,8 @@ size_t memdisk_pending(const struct memdisk *d, const char *path)
 	return f == NULL ? 0 : f->n_pend;
 }
 
-int memdisk_pending_write(const struct memdisk *d, const char *path,
-                          size_t i, uint64_t *off, size_t *len)
+int memdisk_pending_write(const struct memdisk *d, const char *path, size_t i,
+                          uint64_t *off, size_t *len)
 {
 	const struct md_file *f = file_at(d, path);
 
@@ -1216,8 +1213,7 @@ static void cut_one(struct memdisk *d, struct md_file *f,
 	} else if (r < m->apply_pct + m->drop_pct) {
 		return;
 	} else if (r < m->apply_pct + m->drop_pct + m->torn_pct) {
-		(void)apply_pend(d, f, p, (size_t)rnd_below(d, p->len + 1),
-		                 -1);
+		(void)apply_pend(d, f, p, (size_t)rnd_below(d, p->len + 1), -1);
 	} else {
 		if (apply_pend(d, f, p, p->len, 0) == 0 && p->data && p->len)
 			garble(d, f, p);
@@ -1226,7 +1222,7 @@ static void cut_one(struct memdisk *d, struct md_file *f,
 
 void memdisk_powercut(struct memdisk *d, const struct memdisk_cutmix *mix)
 {
-	static const struct memdisk_cutmix def = { 50, 25, 15 };
+	static const struct memdisk_cutmix def = {50, 25, 15};
 	const struct memdisk_cutmix *m = mix;
 	size_t i, j;
 

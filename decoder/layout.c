@@ -17,19 +17,19 @@
 
 #include "bits.h"
 
-#define MAX_BITS ((uint64_t)TP_MAX_PACKET * 8u)
+#define MAX_BITS    ((uint64_t)TP_MAX_PACKET * 8u)
 #define EVERY_MAX_S 31622400u /* 366 days */
-#define F32_NAN 0x7fc00000u
-#define F64_NAN UINT64_C(0x7ff8000000000000)
+#define F32_NAN     0x7fc00000u
+#define F64_NAN     UINT64_C(0x7ff8000000000000)
 
 enum group { G_HEADER = 0, G_RECORDS, G_MATCH, G_CHECK, G_LAYOUT };
 
 /* Where the fields and the check value of one packet lie. */
 struct region {
-	size_t check_at;        /* byte offset of the check value */
-	size_t check_len;       /* its size in bytes; 0 without a check */
+	size_t check_at;         /* byte offset of the check value */
+	size_t check_len;        /* its size in bytes; 0 without a check */
 	size_t cov_from, cov_to; /* bytes covered by the check: [from, to) */
-	uint64_t end_bits;      /* fields lie in [0, end_bits) */
+	uint64_t end_bits;       /* fields lie in [0, end_bits) */
 };
 
 /* ---- field properties ------------------------------------------------ */
@@ -37,10 +37,9 @@ struct region {
 static uint32_t type_bits(enum tp_type t)
 {
 	static const uint8_t w[] = {
-		[TP_T_U8] = 8, [TP_T_I8] = 8, [TP_T_U16] = 16, [TP_T_I16] = 16,
-		[TP_T_U24] = 24, [TP_T_I24] = 24, [TP_T_U32] = 32,
-		[TP_T_I32] = 32, [TP_T_U64] = 64, [TP_T_I64] = 64,
-		[TP_T_F32] = 32, [TP_T_F64] = 64,
+	    [TP_T_U8] = 8,   [TP_T_I8] = 8,   [TP_T_U16] = 16, [TP_T_I16] = 16,
+	    [TP_T_U24] = 24, [TP_T_I24] = 24, [TP_T_U32] = 32, [TP_T_I32] = 32,
+	    [TP_T_U64] = 64, [TP_T_I64] = 64, [TP_T_F32] = 32, [TP_T_F64] = 64,
 	};
 
 	if ((unsigned)t >= sizeof w)
@@ -251,8 +250,9 @@ static const char *width_problem(const struct tp_field *f)
 	if ((unsigned)f->type > TP_T_SKIP)
 		return "unknown field type";
 	if (f->type == TP_T_SKIP)
-		return f->bits == 0 || f->bits > MAX_BITS ?
-		       "skip_bits must be 1..32768" : NULL;
+		return f->bits == 0 || f->bits > MAX_BITS
+		           ? "skip_bits must be 1..32768"
+		           : NULL;
 	if (f->type == TP_T_BITS && (f->bits == 0 || f->bits > 64))
 		return "bits must be 1..64";
 	if (f->type != TP_T_BITS && f->bits != type_bits(f->type))
@@ -277,9 +277,8 @@ static const char *role_problem(const struct tp_field *f, bool in_records)
 	if (f->has_missing || f->has_range)
 		return "a role field takes no missing value or range";
 	if (in_records != (f->role == TP_ROLE_TIME_OFFSET))
-		return in_records ?
-		       "station, seq and time belong in the header" :
-		       "time_offset belongs in the records";
+		return in_records ? "station, seq and time belong in the header"
+		                  : "time_offset belongs in the records";
 	if (f->role == TP_ROLE_STATION && (field_signed(f) || f->bits > 32))
 		return "station must be unsigned and at most 32 bits";
 	if (f->role == TP_ROLE_SEQ && field_signed(f))
@@ -307,7 +306,7 @@ static const char *field_problem(const struct tp_field *f, bool in_records)
 static enum tp_status check_group(const struct tp_field *fs, size_t n,
                                   int group, struct tp_layout_problem *pb)
 {
-	bool seen[TP_ROLE_TIME_OFFSET + 1] = { false };
+	bool seen[TP_ROLE_TIME_OFFSET + 1] = {false};
 	const char *what;
 	size_t i;
 
@@ -343,8 +342,9 @@ static enum tp_status check_records(const struct tp_layout *l,
 	enum tp_status st;
 
 	if (!l->has_records)
-		return l->n_fields ? TP_OK :
-		       problem(pb, G_LAYOUT, -1, "layout has no fields");
+		return l->n_fields
+		           ? TP_OK
+		           : problem(pb, G_LAYOUT, -1, "layout has no fields");
 	if (r->n_fields == 0)
 		return problem(pb, G_RECORDS, -1, "records have no fields");
 	st = check_group(r->fields, r->n_fields, G_RECORDS, pb);
@@ -456,8 +456,7 @@ static enum tp_status check_check(const struct tp_layout *l,
 	if (c->at < 0 && (uint64_t)(-(int64_t)c->at) < check_len(c))
 		return problem(pb, G_CHECK, -1,
 		               "check value runs past the end of the packet");
-	if (c->at >= 0 && !check_in_skip(l) &&
-	    at < tp_layout_header_bits(l))
+	if (c->at >= 0 && !check_in_skip(l) && at < tp_layout_header_bits(l))
 		return problem(pb, G_CHECK, -1,
 		               "check value overlaps the header fields");
 	if (c->at >= 0 && !check_in_skip(l) && at < fixed_bits(l))
@@ -490,8 +489,8 @@ enum tp_status tp_layout_validate(const struct tp_layout *l,
 		st = check_check(l, pb);
 	if (st != TP_OK)
 		return st;
-	if (fixed_bits(l) == 0 && !(l->has_records &&
-	                            l->records.count_field >= 0))
+	if (fixed_bits(l) == 0 &&
+	    !(l->has_records && l->records.count_field >= 0))
 		return problem(pb, G_LAYOUT, -1, "layout holds no fields");
 	need = packet_bytes(l, fixed_bits(l));
 	if (need > TP_MAX_PACKET)
@@ -542,8 +541,8 @@ static bool length_ok(const struct tp_layout *l, size_t len)
 {
 	if (l->length_min == 0 && l->length_max == 0)
 		return true;
-	return len >= l->length_min && (l->length_max == 0 ||
-	                                 len <= l->length_max);
+	return len >= l->length_min &&
+	       (l->length_max == 0 || len <= l->length_max);
 }
 
 static bool match_one(const struct tp_layout *l, const struct tp_match *m,
@@ -567,8 +566,7 @@ static bool match_one(const struct tp_layout *l, const struct tp_match *m,
 	return m->is >= 0 && raw == (uint64_t)m->is;
 }
 
-bool tp_layout_accepts(const struct tp_layout *l, const uint8_t *p,
-                       size_t len)
+bool tp_layout_accepts(const struct tp_layout *l, const uint8_t *p, size_t len)
 {
 	size_t i;
 
@@ -636,8 +634,8 @@ enum tp_status tp_check_verify(const struct tp_layout *l, const uint8_t *p,
 	stored = bits_get(&c, (uint32_t)rg.check_len * 8);
 	if (bits_failed(&c))
 		return TP_ERR_SHORT;
-	return stored == check_compute(&l->check, p, &rg) ? TP_OK :
-	       TP_ERR_CHECK;
+	return stored == check_compute(&l->check, p, &rg) ? TP_OK
+	                                                  : TP_ERR_CHECK;
 }
 
 /* ---- decoding -------------------------------------------------------- */
@@ -702,8 +700,7 @@ static bool time_add(int64_t a, int64_t b, int64_t *out)
 
 /* Seconds given by a time role field (raw x unit), or false if that
  * does not fit in int64. */
-static bool role_seconds(const struct tp_field *f, uint64_t raw,
-                         int64_t *out)
+static bool role_seconds(const struct tp_field *f, uint64_t raw, int64_t *out)
 {
 	int64_t unit = unit_of(f), n;
 
@@ -834,9 +831,9 @@ static bool decodable(const struct tp_layout *l)
 	       tp_layout_record_bits(l) > 0;
 }
 
-static enum tp_status decode_packet(const struct tp_layout *l,
-                                    const uint8_t *p, size_t len,
-                                    struct tp_packet *pk, bool validate)
+static enum tp_status decode_packet(const struct tp_layout *l, const uint8_t *p,
+                                    size_t len, struct tp_packet *pk,
+                                    bool validate)
 {
 	struct region rg;
 	enum tp_status st;
@@ -870,9 +867,8 @@ enum tp_status tp_decode_packet(const struct tp_layout *l, const uint8_t *p,
 	return decode_packet(l, p, len, pk, true);
 }
 
-enum tp_status tp_decode_validated(const struct tp_layout *l,
-                                   const uint8_t *p, size_t len,
-                                   struct tp_packet *pk)
+enum tp_status tp_decode_validated(const struct tp_layout *l, const uint8_t *p,
+                                   size_t len, struct tp_packet *pk)
 {
 	return decode_packet(l, p, len, pk, false);
 }
@@ -927,11 +923,11 @@ enum tp_status tp_decode_record(const struct tp_packet *pk, uint32_t k,
 		return TP_ERR_ARG;
 	l = pk->layout;
 	if (l->n_fields > TP_MAX_FIELDS || (l->n_fields && !l->fields) ||
-	    (l->has_records && (l->records.n_fields > TP_MAX_FIELDS ||
-	                        !l->records.fields)))
+	    (l->has_records &&
+	     (l->records.n_fields > TP_MAX_FIELDS || !l->records.fields)))
 		return TP_ERR_ARG;
-	if (pk->record_bits && k > (UINT64_MAX - pk->records_bit) /
-	                           pk->record_bits)
+	if (pk->record_bits &&
+	    k > (UINT64_MAX - pk->records_bit) / pk->record_bits)
 		return TP_ERR_ARG;
 	memcpy(r->values, pk->header, l->n_fields * sizeof r->values[0]);
 	r->record = k;
@@ -1099,14 +1095,13 @@ static enum tp_status put_groups(const struct tp_layout *l,
 }
 
 /* Packet length for n_records records (padded to length_min). */
-static enum tp_status encode_size(const struct tp_layout *l,
-                                  uint32_t n_records, size_t *len)
+static enum tp_status encode_size(const struct tp_layout *l, uint32_t n_records,
+                                  size_t *len)
 {
 	uint64_t bits = tp_layout_header_bits(l), need;
 
 	if (l->has_records) {
-		if (l->records.count_field < 0 &&
-		    n_records != l->records.count)
+		if (l->records.count_field < 0 && n_records != l->records.count)
 			return TP_ERR_ARG;
 		bits += (uint64_t)n_records * tp_layout_record_bits(l);
 	} else if (n_records > 1) {
@@ -1135,8 +1130,8 @@ static enum tp_status place_check(const struct tp_layout *l, uint8_t *out,
 		return TP_OK;
 	if (find_region(l, len, &rg) != TP_OK)
 		return TP_ERR_LAYOUT;
-	if (rg.cov_from < rg.cov_to && rg.cov_from < rg.check_at +
-	    rg.check_len && rg.check_at < rg.cov_to)
+	if (rg.cov_from < rg.cov_to &&
+	    rg.cov_from < rg.check_at + rg.check_len && rg.check_at < rg.cov_to)
 		return TP_ERR_LAYOUT; /* the check would cover itself */
 	v = check_compute(&l->check, out, &rg);
 	bits_writer(&c, out, (uint64_t)len * 8, l->check.order);

@@ -82,9 +82,9 @@
 #include "tidepost/check.h"
 #include "tidepost/status.h"
 
-#define TP_MAX_FIELDS 64   /* per group (header, records) */
-#define TP_MAX_VALUES 192  /* header + record + derived values */
-#define TP_MAX_MATCH 8
+#define TP_MAX_FIELDS 64  /* per group (header, records) */
+#define TP_MAX_VALUES 192 /* header + record + derived values */
+#define TP_MAX_MATCH  8
 #define TP_MAX_PACKET 4096 /* bytes; longer packets are rejected */
 
 /* QARTOD flags (IOOS 2020, Manual for Real-Time Oceanographic Data
@@ -99,63 +99,77 @@ enum tp_flag {
 
 enum tp_type {
 	TP_T_BITS = 0, /* `bits: N`, 1..64, optionally signed */
-	TP_T_U8, TP_T_I8, TP_T_U16, TP_T_I16, TP_T_U24, TP_T_I24,
-	TP_T_U32, TP_T_I32, TP_T_U64, TP_T_I64,
-	TP_T_F32, TP_T_F64,
-	TP_T_SKIP      /* `skip_bits: N`: N bits ignored */
+	TP_T_U8,
+	TP_T_I8,
+	TP_T_U16,
+	TP_T_I16,
+	TP_T_U24,
+	TP_T_I24,
+	TP_T_U32,
+	TP_T_I32,
+	TP_T_U64,
+	TP_T_I64,
+	TP_T_F32,
+	TP_T_F64,
+	TP_T_SKIP /* `skip_bits: N`: N bits ignored */
 };
 
 enum tp_role {
 	TP_ROLE_VALUE = 0,
 	TP_ROLE_STATION,
 	TP_ROLE_SEQ,
-	TP_ROLE_TIME,        /* header: seconds (or minutes) since epoch */
-	TP_ROLE_TIME_OFFSET  /* records: seconds (or minutes) from packet time */
+	TP_ROLE_TIME,       /* header: seconds (or minutes) since epoch */
+	TP_ROLE_TIME_OFFSET /* records: seconds (or minutes) from packet time */
 };
 
 enum tp_order { TP_ORDER_BIG = 0, TP_ORDER_LITTLE };
 
-enum tp_check_kind { TP_CHECK_NONE = 0, TP_CHECK_CRC, TP_CHECK_SUM8, TP_CHECK_XOR8 };
+enum tp_check_kind {
+	TP_CHECK_NONE = 0,
+	TP_CHECK_CRC,
+	TP_CHECK_SUM8,
+	TP_CHECK_XOR8
+};
 
 struct tp_field {
-	const char *name;       /* NULL only for skip entries */
+	const char *name; /* NULL only for skip entries */
 	enum tp_type type;
-	uint32_t bits;          /* width; set for every type (u16 -> 16, ...) */
-	bool is_signed;         /* two's complement (implied by iN types) */
+	uint32_t bits;  /* width; set for every type (u16 -> 16, ...) */
+	bool is_signed; /* two's complement (implied by iN types) */
 	enum tp_role role;
-	double scale;           /* value = raw * scale + offset; 0 means 1 */
+	double scale; /* value = raw * scale + offset; 0 means 1 */
 	double offset;
 	bool has_missing;
-	uint64_t missing;       /* raw bit pattern meaning "no reading" */
+	uint64_t missing; /* raw bit pattern meaning "no reading" */
 	bool has_range;
 	double range_min, range_max; /* sensor span: outside -> flag 4 */
 	const char *unit;            /* canonical UDUNITS spelling or NULL */
 	const char *standard_name;   /* CF standard name or NULL */
-	int64_t epoch_s;        /* TP_ROLE_TIME: epoch as Unix seconds */
-	uint32_t time_unit_s;   /* time roles: 1 (s) or 60 (min); 0 means 1 */
+	int64_t epoch_s;             /* TP_ROLE_TIME: epoch as Unix seconds */
+	uint32_t time_unit_s; /* time roles: 1 (s) or 60 (min); 0 means 1 */
 };
 
 struct tp_match {
-	int32_t at;             /* byte offset; negative counts from the end */
-	enum tp_type type;      /* a byte-aligned integer type */
-	int64_t is;             /* compared after sign/zero extension */
+	int32_t at;        /* byte offset; negative counts from the end */
+	enum tp_type type; /* a byte-aligned integer type */
+	int64_t is;        /* compared after sign/zero extension */
 };
 
 struct tp_check {
 	enum tp_check_kind kind;
-	struct tp_crc crc;      /* kind == TP_CHECK_CRC; built by tp_crc_init */
-	int32_t at;             /* byte offset; negative counts from the end */
-	bool has_covers;        /* else: covers every byte before `at` */
+	struct tp_crc crc; /* kind == TP_CHECK_CRC; built by tp_crc_init */
+	int32_t at;        /* byte offset; negative counts from the end */
+	bool has_covers;   /* else: covers every byte before `at` */
 	int32_t covers_from, covers_to; /* [from, to); negative from the end */
-	enum tp_order order;    /* byte order of the stored check value */
+	enum tp_order order; /* byte order of the stored check value */
 };
 
 struct tp_records {
 	const struct tp_field *fields;
 	size_t n_fields;
-	uint32_t count;         /* fixed count, when count_field < 0 */
-	int count_field;        /* index of a header field holding the count */
-	uint32_t every_s;       /* record k time = packet time + k * every_s */
+	uint32_t count;   /* fixed count, when count_field < 0 */
+	int count_field;  /* index of a header field holding the count */
+	uint32_t every_s; /* record k time = packet time + k * every_s */
 };
 
 struct tp_layout {
@@ -165,15 +179,15 @@ struct tp_layout {
 	size_t n_match;
 	uint32_t length_min, length_max; /* bytes; 0,0 = any length */
 	struct tp_check check;
-	const struct tp_field *fields;   /* header fields */
+	const struct tp_field *fields; /* header fields */
 	size_t n_fields;
 	bool has_records;
 	struct tp_records records;
 };
 
 struct tp_value {
-	double v;               /* NaN when flag == TP_FLAG_MISSING */
-	uint8_t flag;           /* enum tp_flag */
+	double v;     /* NaN when flag == TP_FLAG_MISSING */
+	uint8_t flag; /* enum tp_flag */
 };
 
 /* A decoded packet: header values and where the records are. */
@@ -184,19 +198,19 @@ struct tp_packet {
 	bool has_station, has_seq, has_time;
 	uint32_t station;
 	uint64_t seq;
-	int64_t time_s;         /* packet time (Unix s); if !has_time the caller
-	                           sets it (receive time) before decoding records */
-	uint32_t n_records;     /* 1 when the layout has no records */
-	uint64_t records_bit;   /* bit offset of record 0 */
-	uint64_t record_bits;   /* size of one record in bits */
+	int64_t time_s;       /* packet time (Unix s); if !has_time the caller
+	                         sets it (receive time) before decoding records */
+	uint32_t n_records;   /* 1 when the layout has no records */
+	uint64_t records_bit; /* bit offset of record 0 */
+	uint64_t record_bits; /* size of one record in bits */
 	struct tp_value header[TP_MAX_FIELDS];
 };
 
 /* One reading: one record (or the whole packet without records). */
 struct tp_reading {
-	uint32_t record;        /* record index k */
-	int64_t time_s;         /* record time, Unix seconds */
-	size_t n_values;        /* n_fields + records.n_fields (+ derived) */
+	uint32_t record; /* record index k */
+	int64_t time_s;  /* record time, Unix seconds */
+	size_t n_values; /* n_fields + records.n_fields (+ derived) */
 	struct tp_value values[TP_MAX_VALUES];
 };
 
@@ -205,7 +219,7 @@ struct tp_reading {
 struct tp_layout_problem {
 	int group;
 	int index;
-	const char *what;       /* static English text */
+	const char *what; /* static English text */
 };
 
 /* Check a layout for internal consistency (widths, roles, count field,
@@ -232,8 +246,7 @@ const struct tp_field *tp_layout_field(const struct tp_layout *l, size_t i);
 int tp_field_decimals(const struct tp_field *f);
 
 /* Do the match and length tests of l accept this packet? */
-bool tp_layout_accepts(const struct tp_layout *l, const uint8_t *p,
-                       size_t len);
+bool tp_layout_accepts(const struct tp_layout *l, const uint8_t *p, size_t len);
 
 /* Index of the first layout that accepts the packet, or -1. */
 int tp_layout_select(const struct tp_layout *const *ls, size_t n,
@@ -264,9 +277,8 @@ enum tp_status tp_decode_packet(const struct tp_layout *l, const uint8_t *p,
  * records of zero bits are TP_ERR_LAYOUT; other faults decode as the
  * layout says.  Same results as tp_decode_packet for a valid layout.
  */
-enum tp_status tp_decode_validated(const struct tp_layout *l,
-                                   const uint8_t *p, size_t len,
-                                   struct tp_packet *pk);
+enum tp_status tp_decode_validated(const struct tp_layout *l, const uint8_t *p,
+                                   size_t len, struct tp_packet *pk);
 
 /* Decode record k (< pk->n_records, else TP_ERR_ARG) into r, header
  * values included.  Reads only inside [pk->data, pk->data + pk->len). */
