@@ -4,7 +4,13 @@
 #   gen.py (3 weeks of invented readings, CSV) -> tidepost encode (COBS
 #   archive) -> corrupt.py (damage 4 frames on purpose) -> tidepost decode
 #   (NDJSON) -> summary.py (a short readable summary).
+# Then the live part (demo/live/run_live.py, about 30 s): an invented
+#   station streams packets over local TCP into `tidepost run`, which
+#   relays them to a small local HTTP receiver (stopped for 10 s and
+#   restarted: the backlog drains) and to an NDJSON file; it ends by itself
+#   with a summary and fails if any accepted reading was lost.
 # Usage: sh demo/run.sh [BUILD]   (outputs in BUILD/demo/, default build/)
+#   DEMO_OFFLINE_ONLY=1 skips the live part.
 set -eu
 BUILD=${1:-build}
 PY=${PYTHON:-/usr/bin/python3}
@@ -45,3 +51,8 @@ echo
 "$PY" "$DEMO/summary.py" --layout "$DEMO/layouts/quillet-v1.json" \
 	--manifest "$OUT/damage.json" --decoder-log "$OUT/decode.log" \
 	<"$OUT/decoded.ndjson" | tee "$OUT/summary.txt"
+
+[ "${DEMO_OFFLINE_ONLY:-}" = 1 ] && exit 0
+echo
+echo "demo: live part - outputs in $OUT/live/"
+"$PY" "$DEMO/live/run_live.py" "$BUILD"
