@@ -77,6 +77,25 @@ static bool env_name_ok(const char *s)
 
 /* --- URLs and secrets ---------------------------------------------------- */
 
+/* Is the host of "http://HOST[:PORT]/..." a loopback name or address
+ * (localhost, 127.0.0.0/8, [::1])?  Plain http stays on this machine. */
+static bool loopback_host(const char *h)
+{
+	size_t n = strcspn(h, ":/?#");
+	size_t i;
+
+	if (strncmp(h, "[::1]", 5) == 0)
+		return h[5] == '\0' || strchr(":/?#", h[5]) != NULL;
+	if (n == 9 && strncasecmp(h, "localhost", 9) == 0)
+		return true;
+	if (n < 9 || strncmp(h, "127.", 4) != 0)
+		return false;
+	for (i = 4; i < n; i++)
+		if (!((h[i] >= '0' && h[i] <= '9') || h[i] == '.'))
+			return false;
+	return true;
+}
+
 static const char *url_problem(const char *u, bool plain_ok)
 {
 	const char *host, *end, *q;
@@ -87,11 +106,12 @@ static const char *url_problem(const char *u, bool plain_ok)
 			return "a blank or control character in the URL";
 	if (strncasecmp(u, "https://", 8) == 0)
 		host = u + 8;
-	else if (strncasecmp(u, "http://", 7) == 0 && plain_ok)
+	else if (strncasecmp(u, "http://", 7) == 0 &&
+	         (plain_ok || loopback_host(u + 7)))
 		host = u + 7;
 	else if (strncasecmp(u, "http://", 7) == 0)
-		return "plain http:// sends readings unencrypted; use https://"
-		       " or set allow_plain_http";
+		return "plain http:// to another host sends readings "
+		       "unencrypted; use https:// or set allow_plain_http";
 	else
 		return "not an https:// URL";
 	end = host + strcspn(host, "/?#");
