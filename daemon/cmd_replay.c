@@ -43,6 +43,7 @@
 #include "cli.h"
 #include "cli_run.h"
 #include "ingest.h"
+#include "progress.h"
 #include "log.h"
 #include "ring.h"
 #include "seen.h"
@@ -85,6 +86,8 @@ struct replay {
 	int64_t chunk_mtime;
 	unsigned n_chunks;
 	uint64_t files, packets, bad, broken, staged, dups, refused;
+	uint64_t done_bytes; /* read so far, for the progress line */
+	struct progress pg;
 	const char *file; /* being read, for messages */
 	struct tp_framer fr;
 	struct tp_packet pk;
@@ -255,6 +258,7 @@ static void replay_packet(struct replay *rp, const uint8_t *p, size_t n,
 		return;
 	}
 	rp->bad++;
+	progress_clear(&rp->pg);
 	if (rp->verbose)
 		log_info("replay: %s: offset %" PRIu64 ": %s", rp->file,
 		         rp->fr.frame_start, why);
@@ -265,6 +269,7 @@ static void replay_result(struct replay *rp, enum tp_frame_result r,
 {
 	if (r == TP_FRAME_BROKEN) {
 		rp->broken++;
+		progress_clear(&rp->pg);
 		if (rp->verbose)
 			log_info("replay: %s: offset %" PRIu64 ": broken frame",
 			         rp->file, rp->fr.frame_start);
@@ -323,6 +328,8 @@ static int replay_file(struct replay *rp, const char *path)
 		if (n <= 0)
 			break;
 		replay_chunk(rp, (size_t)n, (int64_t)sb.st_mtime);
+		rp->done_bytes += (uint64_t)n;
+		progress_update(&rp->pg, rp->done_bytes, rp->staged + rp->dups);
 	}
 	if (n < 0)
 		log_err("replay: read: %s: %s", path, strerror(errno));
@@ -436,12 +443,26 @@ static void summary(const struct replay *rp)
 		         "recognised)");
 }
 
+/* Sum of the files' sizes, for the progress line (0 if unknown). */
+static uint64_t total_bytes(int nfiles, char **files)
+{
+	uint64_t total = 0;
+	struct stat sb;
+	int i;
+
+	for (i = 0; i < nfiles; i++)
+		if (stat(files[i], &sb) == 0 && S_ISREG(sb.st_mode))
+			total += (uint64_t)sb.st_size;
+	return total;
+}
+
 static int replay_all(struct replay *rp, int nfiles, char **files)
 {
 	int i, rc = CLI_EXIT_OK;
 
 	if (open_target(rp) != 0)
 		return CLI_EXIT_USAGE;
+	progress_start(&rp->pg, "replay", "bytes", total_bytes(nfiles, files));
 	for (i = 0; i < nfiles && !rp->full; i++) {
 		if (replay_file(rp, files[i]) != 0)
 			rc = CLI_EXIT_USAGE;
@@ -450,6 +471,7 @@ static int replay_all(struct replay *rp, int nfiles, char **files)
 			return CLI_EXIT_USAGE;
 		}
 	}
+	progress_end(&rp->pg);
 	summary(rp);
 	if (rp->io_error)
 		rc = CLI_EXIT_USAGE;
