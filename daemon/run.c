@@ -57,6 +57,7 @@
 #include "input.h"
 #include "log.h"
 #include "loop.h"
+#include "monitor.h"
 #include "post.h"
 #include "ring.h"
 #include "seen.h"
@@ -106,6 +107,7 @@ struct run {
 	size_t n_in;
 	struct outp out[RING_OUTPUTS_MAX];
 	size_t n_out;
+	struct monitor *mon; /* watchdog, alerts, status (monitor.h) */
 	char replay_dir[4096];
 	enum phase phase;
 	bool done;
@@ -168,8 +170,7 @@ static int signals_init(struct run *r)
 static void alert_log(void *arg, const char *output, const char *condition,
                       const char *message)
 {
-	(void)arg;
-	log_warn("alert: %s: %s: %s", output, condition, message);
+	monitor_notice(((struct run *)arg)->mon, output, condition, message);
 }
 
 /* ---- outputs ---- */
@@ -211,6 +212,8 @@ static bool outputs_busy(const struct run *r)
 
 static void free_outputs(struct run *r)
 {
+	monitor_free(r->mon, false); /* it reports on the outputs */
+	r->mon = NULL;
 	while (r->n_out > 0) {
 		struct outp *o = &r->out[--r->n_out];
 
@@ -358,6 +361,20 @@ static void on_commit(void *arg, bool ok, uint64_t n)
 		input_committed(r->in[i], ok);
 	if (ok && n > 0)
 		kick_all(r);
+	if (ok)
+		monitor_accepted(r->mon, n);
+}
+
+/* The watchdog, alerts and status files on cfg and the outputs. */
+static int start_monitor(struct run *r, const struct config *cfg)
+{
+	struct post *posts[RING_OUTPUTS_MAX];
+	size_t i, n = 0;
+
+	for (i = 0; i < r->n_out; i++)
+		if (r->out[i].post != NULL)
+			posts[n++] = r->out[i].post;
+	return monitor_new(cfg, r->loop, r->ring, r->ing, posts, n, &r->mon);
 }
 
 /* Inputs, ring cursors and outputs of cfg.  0, or -1 (logged; what was
@@ -365,7 +382,8 @@ static void on_commit(void *arg, bool ok, uint64_t n)
 static int apply(struct run *r, struct config *cfg)
 {
 	ingest_set_config(r->ing, cfg);
-	if (start_inputs(r, cfg) != 0 || start_outputs(r, cfg) != 0) {
+	if (start_inputs(r, cfg) != 0 || start_outputs(r, cfg) != 0 ||
+	    start_monitor(r, cfg) != 0) {
 		free_inputs(r);
 		free_outputs(r);
 		return -1;
@@ -626,6 +644,13 @@ static int load_config(struct run *r)
 		return -1;
 	}
 	cfg_errors_free(&errs);
+	if (r->cfg->n_outputs == 0) {
+		/* readings would only pile up in the ring until it is full */
+		log_err("run: %s: no outputs: add an http or file output; "
+		        "not started",
+		        r->cfg_path);
+		return -1;
+	}
 	if (mkdir(r->cfg->state_dir, 0750) != 0 && errno != EEXIST) {
 		log_err("run: mkdir: %s: %s", r->cfg->state_dir,
 		        strerror(errno));
@@ -691,6 +716,8 @@ static int finish(struct run *r)
 	const struct ingest_stats *st = r->ing ? ingest_stats(r->ing) : NULL;
 
 	free_inputs(r);
+	monitor_free(r->mon, true);
+	r->mon = NULL;
 	free_outputs(r);
 	if (st != NULL)
 		log_info("run: stopped: %" PRIu64 " readings accepted, %" PRIu64
@@ -741,11 +768,16 @@ int cmd_run(int argc, char **argv)
 		free(r);
 		return rc;
 	}
-	set_logging(fg);
+	/* Start-up problems always reach stderr; without --foreground the
+	 * running daemon then logs to syslog. */
+	if (fg)
+		set_logging(fg);
 	r->sig_rfd = -1;
 	if (start(r) != 0) {
 		r->exit_code = CLI_EXIT_USAGE;
 		r->done = true;
+	} else if (!fg) {
+		set_logging(fg);
 	}
 	while (!r->done)
 		run_turn(r);
