@@ -43,11 +43,13 @@
 #include "cli.h"
 #include "emit.h"
 #include "log.h"
+#include "process.h"
 
 #define DECODE_READ_BYTES (64 * 1024)
 #define DECODE_LINE_MAX (1024 * 1024) /* one output line, at most */
 #define DECODE_OUT_FLUSH (64 * 1024)  /* write stdout at this much */
 #define DECODE_MAX_WARNED 256         /* unknown stations logged once */
+#define DECODE_OPT_QC_TESTS 512       /* --qc-tests (past CLI_OPT_*) */
 
 const char cmd_decode_usage[] =
 	"usage: tidepost decode [-c CONFIG | -l LAYOUT ...] [--framing F]\n"
@@ -67,6 +69,8 @@ const char cmd_decode_usage[] =
 	"  --received TIME       the time the packets were received (RFC 3339\n"
 	"                        or Unix seconds); default the file's\n"
 	"                        modification time, or now for stdin\n"
+	"  --qc-tests            add each QC'd value's per-test QARTOD flags\n"
+	"                        (NDJSON \"tests\", CSV <value>_<test>)\n"
 	"  -v, --verbose         one line per rejected packet or broken frame\n"
 	"  -h, --help            this text\n"
 	"\n"
@@ -82,6 +86,7 @@ struct decode_opts {
 	size_t fixed_n;
 	bool has_received;
 	int64_t received_s;
+	bool qc_tests; /* --qc-tests */
 };
 
 /* One input being read. */
@@ -105,6 +110,13 @@ struct decode {
 	size_t n_warned;
 	struct tp_packet pk;
 	struct tp_reading rd;
+	/* QC and derived values (process.h), one reading held per station
+	 * and layout until its spike judgement is known */
+	struct process *proc;
+	struct proc_hold *hold;
+	struct proc_out pout;
+	uint64_t ref;
+	struct buf id;
 	uint8_t frame[TP_MAX_PACKET];
 	uint8_t in[DECODE_READ_BYTES];
 };
@@ -145,6 +157,7 @@ static int decode_parse(struct decode_opts *o, int argc, char **argv)
 		{ "framing", required_argument, NULL, CLI_OPT_FRAMING },
 		{ "format", required_argument, NULL, CLI_OPT_FORMAT },
 		{ "received", required_argument, NULL, CLI_OPT_RECEIVED },
+		{ "qc-tests", no_argument, NULL, DECODE_OPT_QC_TESTS },
 		{ "verbose", no_argument, NULL, 'v' },
 		{ "help", no_argument, NULL, 'h' },
 		{ NULL, 0, NULL, 0 }
@@ -163,6 +176,8 @@ static int decode_parse(struct decode_opts *o, int argc, char **argv)
 				return CLI_EXIT_USAGE;
 		} else if (c == 'v') {
 			o->verbose = true;
+		} else if (c == DECODE_OPT_QC_TESTS) {
+			o->qc_tests = true;
 		} else if (c == 'h') {
 			fputs(cmd_decode_usage, stdout);
 			return CLI_EXIT_OK;
@@ -176,10 +191,10 @@ static int decode_parse(struct decode_opts *o, int argc, char **argv)
 }
 
 /* The station as text: config name, else the number (logged once). */
-static const char *station_text(struct decode *d, char *tmp, size_t cap)
+static const char *station_of(struct decode *d, uint32_t number, char *tmp,
+                              size_t cap)
 {
 	const struct cfg_station *st;
-	uint32_t number = d->pk.has_station ? d->pk.station : 0;
 	size_t i;
 
 	st = config_station(d->cfg, number);
@@ -201,6 +216,11 @@ static const char *station_text(struct decode *d, char *tmp, size_t cap)
 		         "logged each");
 	}
 	return tmp;
+}
+
+static const char *station_text(struct decode *d, char *tmp, size_t cap)
+{
+	return station_of(d, d->pk.has_station ? d->pk.station : 0, tmp, cap);
 }
 
 /* Write the output buffer to stdout and empty it; false after a write
@@ -227,25 +247,99 @@ static bool decode_flush(struct decode *d)
 	return !d->write_failed;
 }
 
+static enum tp_status decode_put(struct decode *d,
+                                 const struct emit_reading *er,
+                                 const struct emit_sci *sc);
+
+/* Append the held reading x of station text `station` as one line. */
+static enum tp_status decode_put_held(struct decode *d, const char *station,
+                                      const struct proc_held *x)
+{
+	struct emit_reading er;
+	struct emit_sci sc;
+
+	memset(&sc, 0, sizeof(sc));
+	er.station = station;
+	er.packet = &x->pk;
+	er.reading = &x->rd;
+	er.received_s = x->received_s;
+	if (x->plan != NULL) {
+		sc.derived = x->plan->out;
+		sc.n_derived = x->plan->n_out;
+	}
+	if (d->o.qc_tests) {
+		sc.tests = x->test;
+		sc.n_tests = x->n_tests;
+	}
+	return decode_put(d, &er, &sc);
+}
+
+/*
+ * QC and derived values of d->rd (process.h), then hold-one: the reading
+ * this station+layout held before gets the spike judgement that arrived
+ * now and is written; d->rd is held in its place.  Only stations with a
+ * spike test are held (the others keep file order); without memory for
+ * either, d->rd is written at once (decoder flags, or no final spike).
+ */
+static enum tp_status decode_science(struct decode *d,
+                                     const struct emit_reading *er)
+{
+	uint32_t number = d->pk.has_station ? d->pk.station : 0;
+	struct proc_held *x = NULL;
+	struct proc_held now;
+	enum tp_status st = TP_OK;
+
+	buf_reset(&d->id);
+	emit_reading_id(&d->id, er);
+	if (process_reading(d->proc, number, d->pk.layout, &d->rd, ++d->ref,
+	                    buf_str(&d->id), &d->pout) == 0 &&
+	    d->pout.spike) /* else nothing to wait for: file order */
+		x = proc_hold_get(d->hold, number, d->pk.layout);
+	if (x == NULL) {
+		now.pk = d->pk;
+		now.rd = d->rd;
+		now.received_s = er->received_s;
+		now.plan = d->pout.plan;
+		now.n_tests = d->pout.n_tests;
+		memcpy(now.test, d->pout.test,
+		       d->pout.n_tests * sizeof(now.test[0]));
+		return decode_put_held(d, er->station, &now);
+	}
+	proc_hold_apply(x, &d->pout);
+	if (x->full)
+		st = decode_put_held(d, er->station, x);
+	proc_hold_put(x, &d->pk, &d->rd, er->received_s, d->ref, &d->pout);
+	return st;
+}
+
 /* Append record k of d->pk as one line.  TP_OK, the decoder's status,
  * or TP_ERR_SPACE when the line is longer than DECODE_LINE_MAX (then
  * nothing is appended). */
 static enum tp_status decode_line(struct decode *d, uint32_t k,
                                   const struct emit_reading *er)
 {
-	size_t start;
 	enum tp_status st;
 
 	st = tp_decode_record(&d->pk, k, &d->rd);
 	if (st != TP_OK)
 		return st;
+	return decode_science(d, er);
+}
+
+/* Append er as one line (see decode_line). */
+static enum tp_status decode_put(struct decode *d,
+                                 const struct emit_reading *er,
+                                 const struct emit_sci *sc)
+{
+	size_t start;
+
 	if (d->out.len >= DECODE_OUT_FLUSH && !decode_flush(d))
 		return TP_OK;
 	start = d->out.len;
 	if (d->o.csv)
-		emit_csv_row(&d->out, &d->csv, er);
+		emit_csv_row_sci(&d->out, &d->csv, er, sc);
 	else
-		emit_json_planned(&d->out, &d->plans, er);
+		emit_json_planned_sci(&d->out, &d->plans, er, sc);
 	if (buf_failed(&d->out) || d->out.len - start > DECODE_LINE_MAX) {
 		buf_rewind(&d->out, start);
 		return TP_ERR_SPACE;
@@ -478,9 +572,34 @@ static void decode_summary(const struct decode *d)
 	         d->undecodable, extra);
 }
 
+/* CSV columns of the derived values and (--qc-tests) per-test flags. */
+static int decode_csv_science(struct decode *d)
+{
+	const char *dn[TP_DV_N], **qn;
+	size_t n_d, n_q = 0;
+	int rc;
+
+	qn = calloc(CFG_MAX_ITEMS * (d->cfg->n_stations + 1), sizeof(*qn));
+	if (qn == NULL)
+		return -1;
+	n_d = process_derived_names(d->cfg, dn, TP_DV_N);
+	if (d->o.qc_tests)
+		n_q = process_qc_names(d->cfg, qn,
+		                       CFG_MAX_ITEMS * (d->cfg->n_stations + 1));
+	rc = emit_csv_science(&d->csv, dn, n_d, qn, n_q);
+	free(qn);
+	return rc;
+}
+
 /* Output plans; for CSV the columns and the header, before any input. */
 static int decode_start(struct decode *d)
 {
+	d->proc = process_new(d->cfg);
+	d->hold = proc_hold_new();
+	if (d->proc == NULL || d->hold == NULL) {
+		log_err("decode: qc state: %s", strerror(ENOMEM));
+		return -1;
+	}
 	if (!d->o.csv && emit_plans_init(&d->plans, d->cfg->layout_ptrs,
 	                                 d->cfg->n_layouts) < 0) {
 		log_err("decode: output plans: %s", strerror(errno));
@@ -489,7 +608,8 @@ static int decode_start(struct decode *d)
 	if (!d->o.csv)
 		return 0;
 	if (emit_csv_init(&d->csv, d->cfg->layout_ptrs, d->cfg->n_layouts) <
-	    0) {
+	        0 ||
+	    decode_csv_science(d) < 0) {
 		log_err("decode: csv columns: %s", strerror(errno));
 		return -1;
 	}
@@ -500,6 +620,31 @@ static int decode_start(struct decode *d)
 		return -1;
 	}
 	return 0;
+}
+
+/* Write what hold-one still holds (the newest reading of each station
+ * and layout; their spike tests stay 2). */
+static void decode_held(struct decode *d)
+{
+	char tmp[EMIT_NUM_MAX];
+	struct proc_held *x;
+	size_t i;
+
+	for (i = 0; i < proc_hold_n(d->hold) && !d->write_failed; i++) {
+		x = proc_hold_at(d->hold, i);
+		if (!x->full)
+			continue;
+		if (decode_put_held(d, station_of(d, x->pk.has_station
+		                                         ? x->pk.station
+		                                         : 0,
+		                                  tmp, sizeof(tmp)),
+		                    x) != TP_OK) {
+			d->readings--; /* counted when it came in */
+			d->undecodable++;
+			log_warn("decode: a reading longer than an output line "
+			         "may be");
+		}
+	}
 }
 
 /* Decode every input; the exit status. */
@@ -513,6 +658,7 @@ static int decode_run(struct decode *d, int nfiles, char **files)
 		decode_file(d, "-");
 	for (i = 0; i < nfiles && !d->write_failed; i++)
 		decode_file(d, files[i]);
+	decode_held(d);
 	decode_flush(d);
 	if (!d->write_failed && fflush(stdout) != 0) {
 		log_err("decode: write: stdout: %s", strerror(errno));
@@ -535,6 +681,7 @@ int cmd_decode(int argc, char **argv)
 		return CLI_EXIT_USAGE;
 	}
 	buf_init(&d->out, DECODE_OUT_FLUSH + DECODE_LINE_MAX);
+	buf_init(&d->id, PROC_ID_MAX);
 	rc = decode_parse(&d->o, argc, argv);
 	if (rc < 0 && cli_source_load(&d->o.src, "decode", &d->cfg) < 0)
 		rc = CLI_EXIT_USAGE;
@@ -544,6 +691,9 @@ int cmd_decode(int argc, char **argv)
 	}
 	emit_csv_free(&d->csv);
 	emit_plans_free(&d->plans);
+	process_free(d->proc);
+	proc_hold_free(d->hold);
+	buf_free(&d->id);
 	buf_free(&d->out);
 	config_free(d->cfg);
 	free(d);

@@ -676,6 +676,74 @@ static void json_members(struct buf *b, const struct emit_reading *er,
 	}
 }
 
+/* Does json_members write any member for er? */
+static bool any_member(const struct emit_reading *er)
+{
+	size_t i, n = n_slots(er);
+
+	for (i = 0; i < n; i++)
+		if (emit_is_value(tp_layout_field(er->packet->layout, i)))
+			return true;
+	return false;
+}
+
+/* The derived members after the layout's (values or flags); the first
+ * written loses its comma when *first, which is cleared if any is. */
+static void science_members(struct buf *b, const struct emit_reading *er,
+                            const struct emit_sci *sc, bool flags,
+                            bool *first)
+{
+	const struct tp_derived_info *d;
+	size_t j;
+
+	for (j = 0; sc != NULL && j < sc->n_derived; j++) {
+		d = &sc->derived[j];
+		if (d->slot >= er->reading->n_values)
+			continue;
+		if (!*first)
+			buf_addc(b, ',');
+		*first = false;
+		emit_json_string(b, d->name);
+		buf_addc(b, ':');
+		member_value(b, d->decimals, &er->reading->values[d->slot],
+		             flags);
+	}
+}
+
+/* ,"tests":{"ph":{"gross_range":1,...},...} when sc has tests. */
+static void tests_member(struct buf *b, const struct emit_sci *sc)
+{
+	size_t i;
+	int t;
+
+	if (sc == NULL || sc->tests == NULL)
+		return;
+	buf_add(b, LIT(",\"tests\":{"));
+	for (i = 0; i < sc->n_tests; i++) {
+		if (i > 0)
+			buf_addc(b, ',');
+		emit_json_string(b, sc->tests[i].name);
+		buf_addc(b, ':');
+		for (t = 0; t < TP_QC_N_TESTS; t++)
+			buf_printf(b, "%c\"%s\":%u", t ? ',' : '{',
+			           tp_qc_test_name((enum tp_qc_test)t),
+			           (unsigned)sc->tests[i].test[t]);
+		buf_addc(b, '}');
+	}
+	buf_addc(b, '}');
+}
+
+/* The end of a line: derived flags, "}", the tests, "}\n".  first: no
+ * flag member was written yet. */
+static void json_tail(struct buf *b, const struct emit_reading *er,
+                      const struct emit_sci *sc, bool first)
+{
+	science_members(b, er, sc, true, &first);
+	buf_addc(b, '}');
+	tests_member(b, sc);
+	buf_add(b, LIT("}\n"));
+}
+
 /*
  * A JSON line is head_a, the record number, head_b, the reading time,
  * head_c, the value members, "},\"flags\":{", the flag members, "}}\n".
@@ -767,7 +835,14 @@ static void head_record(struct buf *b, const struct emit_reading *er,
 
 void emit_json(struct buf *b, const struct emit_reading *er)
 {
+	emit_json_sci(b, er, NULL);
+}
+
+void emit_json_sci(struct buf *b, const struct emit_reading *er,
+                   const struct emit_sci *sc)
+{
 	char tmp[20];
+	bool first;
 
 	head_a(b, er);
 	buf_add(b, tmp, (size_t)(put_u64(tmp, er->reading->record) - tmp));
@@ -775,9 +850,11 @@ void emit_json(struct buf *b, const struct emit_reading *er)
 	emit_time(b, er->reading->time_s);
 	head_c(b, er);
 	json_members(b, er, false);
+	first = !any_member(er);
+	science_members(b, er, sc, false, &first);
 	buf_add(b, LIT("},\"flags\":{"));
 	json_members(b, er, true);
-	buf_add(b, LIT("}}\n"));
+	json_tail(b, er, sc, !any_member(er));
 }
 
 /* ---- per-layout plans ------------------------------------------------- */
@@ -1101,7 +1178,8 @@ static void pcache_json(struct emit_pcache *pc, const struct emit_plan *pl,
 /* emit_json_planned from the cached pieces. */
 static void json_cached(struct buf *b, const struct emit_plan *pl,
                         struct emit_pcache *pc,
-                        const struct emit_reading *er, size_t ns)
+                        const struct emit_reading *er, size_t ns,
+                        const struct emit_sci *sc)
 {
 	const char *s;
 	size_t n, hb_len;
@@ -1115,17 +1193,19 @@ static void json_cached(struct buf *b, const struct emit_plan *pl,
 	buf_add(b, s, n);
 	plan_members(b, pl, er, pl->n_head_cols, pl->n_cols, ns, false,
 	             &first);
+	science_members(b, er, sc, false, &first);
 	s = piece(pc, 3, &n);
 	buf_add(b, s, n);
 	first = !pc->any_head;
 	plan_members(b, pl, er, pl->n_head_cols, pl->n_cols, ns, true,
 	             &first);
-	buf_add(b, LIT("}}\n"));
+	json_tail(b, er, sc, first);
 }
 
 /* emit_json_planned without the cache. */
 static void json_uncached(struct buf *b, const struct emit_plan *pl,
-                          const struct emit_reading *er, size_t ns)
+                          const struct emit_reading *er, size_t ns,
+                          const struct emit_sci *sc)
 {
 	bool first = true;
 	char tmp[20];
@@ -1136,10 +1216,11 @@ static void json_uncached(struct buf *b, const struct emit_plan *pl,
 	emit_time(b, er->reading->time_s);
 	head_c(b, er);
 	plan_members(b, pl, er, 0, pl->n_cols, ns, false, &first);
+	science_members(b, er, sc, false, &first);
 	buf_add(b, LIT("},\"flags\":{"));
 	first = true;
 	plan_members(b, pl, er, 0, pl->n_cols, ns, true, &first);
-	buf_add(b, LIT("}}\n"));
+	json_tail(b, er, sc, first);
 }
 
 /* plan_members in place at p (room: pl->room): NULL when a number needs
@@ -1200,11 +1281,18 @@ static bool json_in_place(struct buf *b, const struct emit_plan *pl,
 void emit_json_planned(struct buf *b, const struct emit_plans *ps,
                        const struct emit_reading *er)
 {
+	emit_json_planned_sci(b, ps, er, NULL);
+}
+
+void emit_json_planned_sci(struct buf *b, const struct emit_plans *ps,
+                           const struct emit_reading *er,
+                           const struct emit_sci *sc)
+{
 	const struct emit_plan *pl = plan_for(ps, er->packet->layout);
 	size_t ns;
 
 	if (pl == NULL) {
-		emit_json(b, er);
+		emit_json_sci(b, er, sc);
 		return;
 	}
 	ns = n_slots(er);
@@ -1214,9 +1302,9 @@ void emit_json_planned(struct buf *b, const struct emit_plans *ps,
 			pcache_json(ps->pc, pl, er, ns);
 	}
 	if (ps->pc == NULL || ps->pc->layout != pl->layout)
-		json_uncached(b, pl, er, ns);
-	else if (!json_in_place(b, pl, ps->pc, er, ns))
-		json_cached(b, pl, ps->pc, er, ns);
+		json_uncached(b, pl, er, ns, sc);
+	else if (sc != NULL || !json_in_place(b, pl, ps->pc, er, ns))
+		json_cached(b, pl, ps->pc, er, ns, sc); /* derived: cached */
 }
 
 /* Quote the cell written since `start` if it needs it (RFC 4180). */
@@ -1344,12 +1432,61 @@ void emit_csv_free(struct emit_csv *c)
 	free(c->names);
 	free(c->slot);
 	free(c->form);
+	free(c->dnames);
+	free(c->qnames);
+	c->dnames = c->qnames = NULL;
+	c->n_dnames = c->n_qnames = 0;
 	pcache_free(c->pc);
 	c->pc = NULL;
 	c->names = NULL;
 	c->slot = NULL;
 	c->form = NULL;
 	c->n_names = 0;
+}
+
+int emit_csv_science(struct emit_csv *c, const char *const *dnames,
+                     size_t n_dnames, const char *const *qnames,
+                     size_t n_qnames)
+{
+	size_t i;
+
+	c->dnames = calloc(n_dnames + 1, sizeof(*c->dnames));
+	c->qnames = calloc(n_qnames + 1, sizeof(*c->qnames));
+	if (c->dnames == NULL || c->qnames == NULL) {
+		emit_csv_free(c);
+		errno = ENOMEM;
+		return -1;
+	}
+	for (i = 0; i < n_dnames; i++)
+		if (csv_find(c, dnames[i]) < 0)
+			c->dnames[c->n_dnames++] = dnames[i];
+	for (i = 0; i < n_qnames; i++)
+		c->qnames[c->n_qnames++] = qnames[i];
+	return 0;
+}
+
+/* The derived and per-test column names (emit_csv_science). */
+static void csv_science_header(struct buf *b, const struct emit_csv *c)
+{
+	size_t i, start;
+	int t;
+
+	for (i = 0; i < c->n_dnames; i++) {
+		buf_addc(b, ',');
+		emit_csv_cell(b, c->dnames[i], strlen(c->dnames[i]));
+		buf_addc(b, ',');
+		start = b->len;
+		buf_printf(b, "%s_flag", c->dnames[i]);
+		csv_quote_from(b, start);
+	}
+	for (i = 0; i < c->n_qnames; i++)
+		for (t = 0; t < TP_QC_N_TESTS; t++) {
+			buf_addc(b, ',');
+			start = b->len;
+			buf_printf(b, "%s_%s", c->qnames[i],
+			           tp_qc_test_name((enum tp_qc_test)t));
+			csv_quote_from(b, start);
+		}
 }
 
 void emit_csv_header(struct buf *b, const struct emit_csv *c)
@@ -1366,6 +1503,7 @@ void emit_csv_header(struct buf *b, const struct emit_csv *c)
 		buf_adds(b, "_flag");
 		csv_quote_from(b, start);
 	}
+	csv_science_header(b, c);
 	buf_adds(b, "\r\n");
 }
 
@@ -1501,8 +1639,49 @@ static size_t csv_head(struct buf *b, const struct emit_csv *c, size_t li,
 	return 0;
 }
 
+/* The derived and per-test cells of a row: by name from er. */
+static void csv_science_row(struct buf *b, const struct emit_csv *c,
+                            const struct emit_reading *er,
+                            const struct emit_sci *sc)
+{
+	static const struct emit_sci none;
+	const struct tp_derived_info *d;
+	size_t i, j;
+	int t;
+
+	if (sc == NULL)
+		sc = &none;
+	for (i = 0; i < c->n_dnames; i++) {
+		for (j = 0; j < sc->n_derived; j++)
+			if (strcmp(sc->derived[j].name, c->dnames[i]) == 0)
+				break;
+		d = j < sc->n_derived ? &sc->derived[j] : NULL;
+		csv_value(b, er, er->reading->n_values,
+		          d != NULL ? (int)d->slot : -1,
+		          d != NULL ? d->decimals : 0);
+	}
+	for (i = 0; i < c->n_qnames; i++) {
+		for (j = 0; sc->tests != NULL && j < sc->n_tests; j++)
+			if (strcmp(sc->tests[j].name, c->qnames[i]) == 0)
+				break;
+		for (t = 0; t < TP_QC_N_TESTS; t++)
+			if (sc->tests != NULL && j < sc->n_tests)
+				buf_printf(b, ",%u",
+				           (unsigned)sc->tests[j].test[t]);
+			else
+				buf_addc(b, ',');
+	}
+}
+
 void emit_csv_row(struct buf *b, const struct emit_csv *c,
                   const struct emit_reading *er)
+{
+	emit_csv_row_sci(b, c, er, NULL);
+}
+
+void emit_csv_row_sci(struct buf *b, const struct emit_csv *c,
+                      const struct emit_reading *er,
+                      const struct emit_sci *sc)
 {
 	size_t li, i, ns;
 
@@ -1515,5 +1694,7 @@ void emit_csv_row(struct buf *b, const struct emit_csv *c,
 	for (i = csv_head(b, c, li, er, ns); i < c->n_names; i++)
 		csv_value(b, er, ns, c->slot[li * c->n_names + i],
 		          c->form[li * c->n_names + i]);
+	if (c->n_dnames + c->n_qnames > 0)
+		csv_science_row(b, c, er, sc);
 	buf_add(b, LIT("\r\n"));
 }

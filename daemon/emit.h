@@ -42,6 +42,7 @@
 #include "tidepost/layout.h"
 
 #include "buf.h"
+#include "process.h" /* added: derived values and per-test flags */
 
 /* Times RFC 3339 can write: 0000-01-01T00:00:00Z .. 9999-12-31T23:59:59Z */
 #define EMIT_TIME_MIN (-62167219200LL)
@@ -63,6 +64,18 @@ struct emit_reading {
 	const struct tp_packet *packet; /* packet->layout is the layout */
 	const struct tp_reading *reading;
 	int64_t received_s;             /* Unix seconds the packet came in */
+};
+
+/* Added for derived values and QC (process.h): what a reading carries
+ * beyond its layout's values.  Derived values follow the layout's in
+ * "values"/"flags" (and CSV), printed with their info's decimals; tests
+ * add "tests":{"ph":{"gross_range":1,...},...} after "flags".  The _sci
+ * writers take one (NULL: none, the same as the plain writers). */
+struct emit_sci {
+	const struct tp_derived_info *derived; /* n_derived, slot order */
+	size_t n_derived;
+	const struct proc_test *tests; /* n_tests; NULL: no "tests" */
+	size_t n_tests;
 };
 
 /* Is slot f a value (printed in values/flags), not a role or skip? */
@@ -111,6 +124,8 @@ void emit_reading_id(struct buf *b, const struct emit_reading *er);
 
 /* The reading as one JSON object line, '\n' included. */
 void emit_json(struct buf *b, const struct emit_reading *er);
+void emit_json_sci(struct buf *b, const struct emit_reading *er,
+                   const struct emit_sci *sc);
 
 /*
  * Per-layout plans: what every reading of a layout prints the same way,
@@ -156,6 +171,9 @@ void emit_plans_free(struct emit_plans *ps);
  * has none for it). */
 void emit_json_planned(struct buf *b, const struct emit_plans *ps,
                        const struct emit_reading *er);
+void emit_json_planned_sci(struct buf *b, const struct emit_plans *ps,
+                           const struct emit_reading *er,
+                           const struct emit_sci *sc);
 
 /* One CSV cell, quoted when needed (no separator). */
 void emit_csv_cell(struct buf *b, const char *s, size_t n);
@@ -174,11 +192,28 @@ struct emit_csv {
 	int *slot;             /* [layout * n_names + column]: slot or -1 */
 	int *form;             /* same index: number form (struct emit_col) */
 	struct emit_pcache *pc; /* what the last packet's rows share */
+	/* added by emit_csv_science (borrowed strings; arrays owned) */
+	const char **dnames;   /* derived value columns, after the above */
+	size_t n_dnames;
+	const char **qnames;   /* <name>_<test> columns, after those */
+	size_t n_qnames;
 };
 
 /* Build the table.  Returns 0, or -1 (out of memory, errno set). */
 int emit_csv_init(struct emit_csv *c, const struct tp_layout *const *ls,
                   size_t n) __attribute__((warn_unused_result));
+
+/*
+ * Add derived value columns (<name>,<name>_flag, after the layouts'
+ * columns; a name already among them is skipped) and per-test columns
+ * <name>_<test> for every value in qnames and every QARTOD test in
+ * enum tp_qc_test order.  Call after emit_csv_init, before the header.
+ * emit_csv_row_sci fills them from its emit_sci (empty cells without).
+ * Returns 0, or -1 (out of memory, errno set).
+ */
+int emit_csv_science(struct emit_csv *c, const char *const *dnames,
+                     size_t n_dnames, const char *const *qnames,
+                     size_t n_qnames) __attribute__((warn_unused_result));
 
 /* Release the table; NULL is fine. */
 void emit_csv_free(struct emit_csv *c);
@@ -191,5 +226,8 @@ void emit_csv_header(struct buf *b, const struct emit_csv *c);
  * the layout is not one the table was built for. */
 void emit_csv_row(struct buf *b, const struct emit_csv *c,
                   const struct emit_reading *er);
+void emit_csv_row_sci(struct buf *b, const struct emit_csv *c,
+                      const struct emit_reading *er,
+                      const struct emit_sci *sc);
 
 #endif

@@ -16,6 +16,7 @@
 #include "emit.h"
 #include "ingest.h"
 #include "log.h"
+#include "process.h"
 
 #define INGEST_MAX_WARNED 256 /* unknown stations logged once */
 #define INGEST_ID_MAX     256
@@ -40,6 +41,10 @@ struct ingest {
 	struct buf json;
 	struct tp_packet pk;
 	struct tp_reading rd;
+	/* QC and derived values (process.h); NULL: decoder flags only */
+	struct process *proc;
+	struct proc_out *pout;
+	uint64_t ref;
 };
 
 struct ingest *ingest_new(const struct config *cfg, struct ring *ring,
@@ -55,6 +60,12 @@ struct ingest *ingest_new(const struct config *cfg, struct ring *ring,
 	ing->clock = clock != NULL ? clock : clock_system();
 	buf_init(&ing->id, INGEST_ID_MAX);
 	buf_init(&ing->json, INGEST_JSON_MAX);
+	ing->proc = process_new(cfg);
+	ing->pout = calloc(1, sizeof(*ing->pout));
+	if (ing->proc == NULL || ing->pout == NULL) {
+		ingest_free(ing);
+		return NULL;
+	}
 	return ing;
 }
 
@@ -64,6 +75,8 @@ void ingest_free(struct ingest *ing)
 		return;
 	buf_free(&ing->id);
 	buf_free(&ing->json);
+	process_free(ing->proc);
+	free(ing->pout);
 	free(ing);
 }
 
@@ -71,6 +84,8 @@ void ingest_set_config(struct ingest *ing, const struct config *cfg)
 {
 	ing->cfg = cfg;
 	ing->n_warned = 0;
+	process_free(ing->proc); /* QC history starts afresh */
+	ing->proc = process_new(cfg);
 }
 
 void ingest_set_listener(struct ingest *ing, ingest_listener_fn fn, void *arg)
@@ -245,12 +260,52 @@ static uint64_t reading_id(struct ingest *ing, const struct emit_reading *er)
 	return seen_hash(buf_str(&ing->id), ing->id.len);
 }
 
+/* QC and derived values of ing->rd, before its JSON (process.h): *sci
+ * gets the derived values to print.  On failure (out of memory) the
+ * reading keeps the decoder's flags and has no derived values. */
+static void ingest_process(struct ingest *ing, struct emit_sci *sci)
+{
+	uint32_t number = ing->pk.has_station ? ing->pk.station : 0;
+
+	memset(sci, 0, sizeof(*sci));
+	if (process_reading(ing->proc, number, ing->pk.layout, &ing->rd,
+	                    ++ing->ref, buf_str(&ing->id), ing->pout) != 0) {
+		ing->pout->n_updates = 0;
+		return;
+	}
+	sci->derived = ing->pout->plan->out;
+	sci->n_derived = ing->pout->plan->n_out;
+}
+
+/* The corrected flags of earlier readings (the spike test's delayed
+ * judgement), each id's as its own ring record after the new reading;
+ * outputs relay them like readings.  Counted in `staged` (ring records
+ * to commit), not in res->staged. */
+static enum ring_rc ingest_updates(struct ingest *ing)
+{
+	const struct proc_out *o = ing->pout;
+	enum ring_rc rc = RING_OK;
+	size_t i = 0;
+
+	while (i < o->n_updates && rc == RING_OK) {
+		buf_reset(&ing->json);
+		i += process_update_json(&ing->json, o->update + i,
+		                         o->n_updates - i);
+		if (buf_failed(&ing->json))
+			continue;
+		rc = stage(ing, ing->json.data, ing->json.len);
+		ing->staged += rc == RING_OK; /* a ring record to commit */
+	}
+	return rc;
+}
+
 /* One decoded reading (ing->rd of ing->pk): JSON, stage. */
 static enum ingest_rc ingest_reading(struct ingest *ing,
                                      const struct emit_reading *er,
                                      struct ingest_result *res)
 {
 	uint64_t h = reading_id(ing, er);
+	struct emit_sci sci;
 	enum ring_rc rc;
 
 	if (ing->seen != NULL && seen_has(ing->seen, h)) {
@@ -258,8 +313,9 @@ static enum ingest_rc ingest_reading(struct ingest *ing,
 		ing->st.duplicates++;
 		return INGEST_OK;
 	}
+	ingest_process(ing, &sci);
 	buf_reset(&ing->json);
-	emit_json(&ing->json, er);
+	emit_json_sci(&ing->json, er, &sci);
 	if (buf_failed(&ing->json) || ing->json.len < 2) {
 		ing->st.undecodable++;
 		snprintf(res->reason, sizeof(res->reason),
@@ -279,7 +335,10 @@ static enum ingest_rc ingest_reading(struct ingest *ing,
 		log_warn("seen: stage: %s", strerror(errno));
 	ing->staged++;
 	res->staged++;
-	return INGEST_OK;
+	rc = ingest_updates(ing);
+	/* a full ring drops the update (flags only get worse; the next
+	 * reading is refused anyway); a failed ring stops ingest */
+	return rc == RING_OK || rc == RING_FULL ? INGEST_OK : INGEST_DOWN;
 }
 
 /* Every record of ing->pk. */
