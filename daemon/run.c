@@ -644,13 +644,16 @@ static int load_config(struct run *r)
 		return -1;
 	}
 	cfg_errors_free(&errs);
-	if (r->cfg->n_outputs == 0) {
-		/* readings would only pile up in the ring until it is full */
-		log_err("run: %s: no outputs: add an http or file output; "
+	if (r->cfg->n_outputs == 0 && r->cfg->n_inputs == 0) {
+		log_err("run: %s: no inputs and no outputs: nothing to do; "
 		        "not started",
 		        r->cfg_path);
 		return -1;
 	}
+	if (r->cfg->n_outputs == 0)
+		log_warn("run: %s: no outputs: readings stay in the ring "
+		         "until an output is configured",
+		         r->cfg_path);
 	if (mkdir(r->cfg->state_dir, 0750) != 0 && errno != EEXIST) {
 		log_err("run: mkdir: %s: %s", r->cfg->state_dir,
 		        strerror(errno));
