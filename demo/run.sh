@@ -38,7 +38,7 @@ echo "demo: damaged 4 frames on purpose -> $OUT/archive-damaged.cobs"
 # decode exits non-zero when it rejected packets; that is expected here,
 # so its status is kept and checked below rather than stopping the demo.
 rc=0
-"$TP" decode -c "$DEMO/config.json" --framing cobs \
+"$TP" decode -c "$DEMO/config.json" --framing cobs --qc-tests \
 	"$OUT/archive-damaged.cobs" >"$OUT/decoded.ndjson" \
 	2>"$OUT/decode.log" || rc=$?
 if [ ! -s "$OUT/decoded.ndjson" ]; then
