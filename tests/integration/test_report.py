@@ -333,6 +333,12 @@ def test_panels_and_units(c):
     assert set(ps) == names, (sorted(ps), sorted(names))
     units = {f["name"]: f.get("unit") for f in
              LAYOUT["fields"] + LAYOUT["records"]["fields"]}
+    # values tidepost derives (decoder/derive.c's table), with their units
+    units.update({"salinity": "1", "oxygen_solubility": "umol/kg",
+                  "oxygen_saturation": "%", "alkalinity": "umol/kg",
+                  "pco2": "uatm", "fco2": "uatm", "dic": "umol/kg",
+                  "carbonate_ion": "umol/kg", "omega_aragonite": "1",
+                  "omega_calcite": "1", "ph_insitu": "1"})
     for name, svg in ps.items():
         label = [t for t in svg.iter(SV + "text")
                  if t.get("class") == "ylabel"][0]
