@@ -18,11 +18,11 @@
 #include <stddef.h>
 
 struct buf {
-	char *data;     /* NULL until the first append */
-	size_t len;     /* bytes used, not counting the final NUL */
-	size_t size;    /* bytes allocated */
-	size_t max;     /* cap on len */
-	bool err;       /* sticky: an append did not fit or could not grow */
+	char *data;  /* NULL until the first append */
+	size_t len;  /* bytes used, not counting the final NUL */
+	size_t size; /* bytes allocated */
+	size_t max;  /* cap on len */
+	bool err;    /* sticky: an append did not fit or could not grow */
 };
 
 /* Empty buffer holding at most max bytes.  Allocates nothing yet. */
@@ -39,7 +39,7 @@ void buf_add(struct buf *b, const void *p, size_t n);
 void buf_addc(struct buf *b, char c);
 void buf_adds(struct buf *b, const char *s);
 void buf_printf(struct buf *b, const char *fmt, ...)
-	__attribute__((format(printf, 2, 3)));
+    __attribute__((format(printf, 2, 3)));
 
 /* Did any append since init/reset fail? */
 static inline bool buf_failed(const struct buf *b)

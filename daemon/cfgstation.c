@@ -96,7 +96,8 @@ static int battery(struct ld *ld, const cJSON *node, struct config *c,
 		o2 = ld_key(ld, "critical_v");
 		ld_err(ld, n, 0,
 		       "%.15g is not between cutoff_v and warn_v; the"
-		       " critical level lies between them", b->critical_v);
+		       " critical level lies between them",
+		       b->critical_v);
 		ld_pop(ld, o2);
 		bad = 1;
 	}

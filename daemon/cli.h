@@ -27,8 +27,8 @@
 #define TP_VERSION "0.0.0"
 #endif
 
-#define CLI_EXIT_OK 0
-#define CLI_EXIT_FAIL 1
+#define CLI_EXIT_OK    0
+#define CLI_EXIT_FAIL  1
 #define CLI_EXIT_USAGE 2
 
 #define CLI_MAX_LAYOUT_FILES 64
@@ -51,7 +51,7 @@ struct cli_source {
 
 /* Record one -l path; logs and returns -1 past CLI_MAX_LAYOUT_FILES. */
 int cli_source_add(struct cli_source *s, const char *cmd, const char *path)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 
 /* Load what s names (exactly one of -c / -l), print every problem.
  * Returns 0 and *out (free with config_free), or -1 (exit 2). */
@@ -67,7 +67,7 @@ int cli_bad_option(const char *cmd, int c, char **argv);
 
 /* Parse a Unix-seconds integer or an RFC 3339 time.  0, or -1. */
 int cli_parse_time(const char *s, int64_t *out)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 
 int cmd_decode(int argc, char **argv);
 int cmd_encode(int argc, char **argv);
@@ -81,7 +81,7 @@ extern const char cmd_status_usage[];
 
 /* Parse a decimal integer that must fill s ("" and "12x" are errors).
  * 0, or -1. */
-int cli_parse_int(const char *s, long long min, long long max,
-                  long long *out) __attribute__((warn_unused_result));
+int cli_parse_int(const char *s, long long min, long long max, long long *out)
+    __attribute__((warn_unused_result));
 
 #endif

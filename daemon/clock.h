@@ -11,8 +11,8 @@
 #include <stdint.h>
 
 struct clock {
-	int64_t (*mono_ms)(void *arg);  /* CLOCK_MONOTONIC, milliseconds */
-	int64_t (*real_ms)(void *arg);  /* CLOCK_REALTIME, ms since 1970 */
+	int64_t (*mono_ms)(void *arg); /* CLOCK_MONOTONIC, milliseconds */
+	int64_t (*real_ms)(void *arg); /* CLOCK_REALTIME, ms since 1970 */
 	void *arg;
 };
 

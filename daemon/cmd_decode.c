@@ -45,37 +45,37 @@
 #include "log.h"
 #include "process.h"
 
-#define DECODE_READ_BYTES (64 * 1024)
-#define DECODE_LINE_MAX (1024 * 1024) /* one output line, at most */
-#define DECODE_OUT_FLUSH (64 * 1024)  /* write stdout at this much */
-#define DECODE_MAX_WARNED 256         /* unknown stations logged once */
-#define DECODE_OPT_QC_TESTS 512       /* --qc-tests (past CLI_OPT_*) */
+#define DECODE_READ_BYTES   (64 * 1024)
+#define DECODE_LINE_MAX     (1024 * 1024) /* one output line, at most */
+#define DECODE_OUT_FLUSH    (64 * 1024)   /* write stdout at this much */
+#define DECODE_MAX_WARNED   256           /* unknown stations logged once */
+#define DECODE_OPT_QC_TESTS 512           /* --qc-tests (past CLI_OPT_*) */
 
 const char cmd_decode_usage[] =
-	"usage: tidepost decode [-c CONFIG | -l LAYOUT ...] [--framing F]\n"
-	"                       [--format ndjson|csv] [--received TIME] [-v]\n"
-	"                       [FILE ... | -]\n"
-	"\n"
-	"Decode archived packets (message files or captured byte streams)\n"
-	"and write one reading per line on stdout; a summary goes to stderr.\n"
-	"Without FILE, or with -, standard input is read.\n"
-	"\n"
-	"  -c, --config CONFIG   layouts and station names from a config\n"
-	"  -l, --layout-file L   a layout file (repeat for several); station\n"
-	"                        numbers are then written as numbers\n"
-	"  --framing F           cobs, slip, hex, whole or fixed:N; default\n"
-	"                        whole for *.sbd and *.bin files, else cobs\n"
-	"  --format F            ndjson (default) or csv (RFC 4180)\n"
-	"  --received TIME       the time the packets were received (RFC 3339\n"
-	"                        or Unix seconds); default the file's\n"
-	"                        modification time, or now for stdin\n"
-	"  --qc-tests            add each QC'd value's per-test QARTOD flags\n"
-	"                        (NDJSON \"tests\", CSV <value>_<test>)\n"
-	"  -v, --verbose         one line per rejected packet or broken frame\n"
-	"  -h, --help            this text\n"
-	"\n"
-	"Exit status: 0 some packet decoded, 1 no valid packet in the input,\n"
-	"2 usage, config or I/O error.\n";
+    "usage: tidepost decode [-c CONFIG | -l LAYOUT ...] [--framing F]\n"
+    "                       [--format ndjson|csv] [--received TIME] [-v]\n"
+    "                       [FILE ... | -]\n"
+    "\n"
+    "Decode archived packets (message files or captured byte streams)\n"
+    "and write one reading per line on stdout; a summary goes to stderr.\n"
+    "Without FILE, or with -, standard input is read.\n"
+    "\n"
+    "  -c, --config CONFIG   layouts and station names from a config\n"
+    "  -l, --layout-file L   a layout file (repeat for several); station\n"
+    "                        numbers are then written as numbers\n"
+    "  --framing F           cobs, slip, hex, whole or fixed:N; default\n"
+    "                        whole for *.sbd and *.bin files, else cobs\n"
+    "  --format F            ndjson (default) or csv (RFC 4180)\n"
+    "  --received TIME       the time the packets were received (RFC 3339\n"
+    "                        or Unix seconds); default the file's\n"
+    "                        modification time, or now for stdin\n"
+    "  --qc-tests            add each QC'd value's per-test QARTOD flags\n"
+    "                        (NDJSON \"tests\", CSV <value>_<test>)\n"
+    "  -v, --verbose         one line per rejected packet or broken frame\n"
+    "  -h, --help            this text\n"
+    "\n"
+    "Exit status: 0 some packet decoded, 1 no valid packet in the input,\n"
+    "2 usage, config or I/O error.\n";
 
 struct decode_opts {
 	struct cli_source src;
@@ -91,7 +91,7 @@ struct decode_opts {
 
 /* One input being read. */
 struct decode_input {
-	const char *name;   /* as given; "stdin" for standard input */
+	const char *name; /* as given; "stdin" for standard input */
 	int fd;
 	int64_t received_s;
 	struct tp_framer fr;
@@ -102,7 +102,7 @@ struct decode {
 	struct config *cfg;
 	struct emit_csv csv;
 	struct emit_plans plans;
-	struct buf out;         /* lines not yet written to stdout */
+	struct buf out; /* lines not yet written to stdout */
 	uint64_t frames, packets, readings;
 	uint64_t bad_check, unknown, broken, undecodable, unreadable;
 	bool write_failed;
@@ -131,8 +131,8 @@ static int decode_option(struct decode_opts *o, int c, const char *arg)
 		     o->fixed_n <= TP_MAX_PACKET))
 			return 0;
 		log_err("decode: --framing %s: not a framing; valid: cobs, "
-		        "slip, hex, whole, fixed:N (N 1..%d)", arg,
-		        TP_MAX_PACKET);
+		        "slip, hex, whole, fixed:N (N 1..%d)",
+		        arg, TP_MAX_PACKET);
 	} else if (c == CLI_OPT_FORMAT) {
 		o->csv = strcmp(arg, "csv") == 0;
 		if (o->csv || strcmp(arg, "ndjson") == 0)
@@ -143,7 +143,8 @@ static int decode_option(struct decode_opts *o, int c, const char *arg)
 		if (cli_parse_time(arg, &o->received_s) == 0)
 			return 0;
 		log_err("decode: --received %s: not a time; give RFC 3339 "
-		        "(2026-11-30T07:02:11Z) or Unix seconds", arg);
+		        "(2026-11-30T07:02:11Z) or Unix seconds",
+		        arg);
 	}
 	return -1;
 }
@@ -152,16 +153,15 @@ static int decode_option(struct decode_opts *o, int c, const char *arg)
 static int decode_parse(struct decode_opts *o, int argc, char **argv)
 {
 	static const struct option opts[] = {
-		{ "config", required_argument, NULL, 'c' },
-		{ "layout-file", required_argument, NULL, 'l' },
-		{ "framing", required_argument, NULL, CLI_OPT_FRAMING },
-		{ "format", required_argument, NULL, CLI_OPT_FORMAT },
-		{ "received", required_argument, NULL, CLI_OPT_RECEIVED },
-		{ "qc-tests", no_argument, NULL, DECODE_OPT_QC_TESTS },
-		{ "verbose", no_argument, NULL, 'v' },
-		{ "help", no_argument, NULL, 'h' },
-		{ NULL, 0, NULL, 0 }
-	};
+	    {"config", required_argument, NULL, 'c'},
+	    {"layout-file", required_argument, NULL, 'l'},
+	    {"framing", required_argument, NULL, CLI_OPT_FRAMING},
+	    {"format", required_argument, NULL, CLI_OPT_FORMAT},
+	    {"received", required_argument, NULL, CLI_OPT_RECEIVED},
+	    {"qc-tests", no_argument, NULL, DECODE_OPT_QC_TESTS},
+	    {"verbose", no_argument, NULL, 'v'},
+	    {"help", no_argument, NULL, 'h'},
+	    {NULL, 0, NULL, 0}};
 	int c;
 
 	opterr = 0;
@@ -364,11 +364,12 @@ static void decode_records(struct decode *d, const struct decode_input *in)
 		if (st != TP_OK) {
 			d->undecodable++;
 			log_warn("decode: %s: offset %" PRIu64
-			         ": record %" PRIu32 ": %s", in->name,
-			         in->fr.frame_start, k,
-			         st != TP_ERR_SPACE ? tp_strerror(st)
-			                     : "reading longer than an output "
-			                       "line may be");
+			         ": record %" PRIu32 ": %s",
+			         in->name, in->fr.frame_start, k,
+			         st != TP_ERR_SPACE
+			             ? tp_strerror(st)
+			             : "reading longer than an output "
+			               "line may be");
 			continue;
 		}
 		if (!d->write_failed)
@@ -391,7 +392,7 @@ static const char *check_name(const struct tp_layout *l)
 /* A rejected frame: count it; with -v say where and why. */
 static void decode_reject(struct decode *d, const struct decode_input *in,
                           uint64_t *count, const char *fmt, ...)
-	__attribute__((format(printf, 4, 5)));
+    __attribute__((format(printf, 4, 5)));
 
 static void decode_reject(struct decode *d, const struct decode_input *in,
                           uint64_t *count, const char *fmt, ...)
@@ -562,13 +563,11 @@ static void decode_summary(const struct decode *d)
 		         plural(d->unreadable, "input", "inputs"));
 	log_info("decode: %" PRIu64 " %s, %" PRIu64 " %s, %" PRIu64 " %s, "
 	         "%" PRIu64 " %s, %" PRIu64 " %s, %" PRIu64 " undecodable%s",
-	         d->frames, plural(d->frames, "frame", "frames"),
-	         d->readings, plural(d->readings, "reading", "readings"),
-	         d->bad_check, plural(d->bad_check, "bad check", "bad checks"),
-	         d->unknown,
+	         d->frames, plural(d->frames, "frame", "frames"), d->readings,
+	         plural(d->readings, "reading", "readings"), d->bad_check,
+	         plural(d->bad_check, "bad check", "bad checks"), d->unknown,
 	         plural(d->unknown, "unknown layout", "unknown layouts"),
-	         d->broken,
-	         plural(d->broken, "broken frame", "broken frames"),
+	         d->broken, plural(d->broken, "broken frame", "broken frames"),
 	         d->undecodable, extra);
 }
 
@@ -584,8 +583,8 @@ static int decode_csv_science(struct decode *d)
 		return -1;
 	n_d = process_derived_names(d->cfg, dn, TP_DV_N);
 	if (d->o.qc_tests)
-		n_q = process_qc_names(d->cfg, qn,
-		                       CFG_MAX_ITEMS * (d->cfg->n_stations + 1));
+		n_q = process_qc_names(
+		    d->cfg, qn, CFG_MAX_ITEMS * (d->cfg->n_stations + 1));
 	rc = emit_csv_science(&d->csv, dn, n_d, qn, n_q);
 	free(qn);
 	return rc;
@@ -634,11 +633,11 @@ static void decode_held(struct decode *d)
 		x = proc_hold_at(d->hold, i);
 		if (!x->full)
 			continue;
-		if (decode_put_held(d, station_of(d, x->pk.has_station
-		                                         ? x->pk.station
-		                                         : 0,
-		                                  tmp, sizeof(tmp)),
-		                    x) != TP_OK) {
+		if (decode_put_held(
+		        d,
+		        station_of(d, x->pk.has_station ? x->pk.station : 0,
+		                   tmp, sizeof(tmp)),
+		        x) != TP_OK) {
 			d->readings--; /* counted when it came in */
 			d->undecodable++;
 			log_warn("decode: a reading longer than an output line "

@@ -95,13 +95,13 @@ struct cfg_battery {
 	uint32_t forecast_h;     /* alert when cutoff is forecast within */
 	uint32_t trend_h;        /* window the trend is fitted over */
 	/* added for the watchdog (watch.h documents each choice) */
-	double critical_v;       /* 0: cutoff_v + min(0.5, (warn_v -
-	                            cutoff_v) / 2); needs cutoff_v */
-	uint32_t median_n;       /* readings in the short median */
-	double hysteresis_v;     /* low alerts clear this far above */
-	int fit;                 /* enum cfg_trend_fit */
-	uint32_t trend_min_n;    /* fewer points: no forecast */
-	double flat_v_per_day;   /* a shallower fall: no forecast */
+	double critical_v;     /* 0: cutoff_v + min(0.5, (warn_v -
+	                          cutoff_v) / 2); needs cutoff_v */
+	uint32_t median_n;     /* readings in the short median */
+	double hysteresis_v;   /* low alerts clear this far above */
+	int fit;               /* enum cfg_trend_fit */
+	uint32_t trend_min_n;  /* fewer points: no forecast */
+	double flat_v_per_day; /* a shallower fall: no forecast */
 };
 
 enum cfg_trend_fit { CFG_FIT_THEIL_SEN = 0, CFG_FIT_LEAST_SQUARES };
@@ -125,8 +125,8 @@ struct cfg_station {
 	uint32_t qc_clear_n;    /* good values in a row that clear it */
 	uint32_t clock_limit_s; /* packet time vs received; 0: off */
 	/* added for derived values (cfgderive.c, process.h) */
-	bool derive;                 /* false: no derived values */
-	int pressure_from;           /* enum tp_pres_source */
+	bool derive;                     /* false: no derived values */
+	int pressure_from;               /* enum tp_pres_source */
 	struct tp_derive_cfg derive_cfg; /* resolved; names in the arena */
 };
 
@@ -214,9 +214,9 @@ struct cfg_alerts {
 	uint32_t silent_after_s; /* station silent this long -> alert */
 	uint32_t repeat_s;       /* repeat an open alert this often */
 	/* added for the watchdog and alert delivery (watch.h, alert.h) */
-	uint32_t down_after_s;   /* an output failing this long: alert */
-	double backlog_share;    /* ring share of unsent readings: alert */
-	uint32_t exec_per_min;   /* exec target runs per minute, at most */
+	uint32_t down_after_s; /* an output failing this long: alert */
+	double backlog_share;  /* ring share of unsent readings: alert */
+	uint32_t exec_per_min; /* exec target runs per minute, at most */
 };
 
 struct cfg_ring {

@@ -11,10 +11,10 @@
 
 #include "emit.h"
 
-#define EMIT_MAX_DECIMALS 40
-#define EMIT_FAST_DECIMALS 9  /* emit_fixed_chars handles 0..9 */
-#define EMIT_FORM_F64 (-1)    /* struct emit_col form: shortest */
-#define EMIT_FORM_F32 (-2)    /* struct emit_col form: %.9g */
+#define EMIT_MAX_DECIMALS  40
+#define EMIT_FAST_DECIMALS 9    /* emit_fixed_chars handles 0..9 */
+#define EMIT_FORM_F64      (-1) /* struct emit_col form: shortest */
+#define EMIT_FORM_F32      (-2) /* struct emit_col form: %.9g */
 
 #if defined(__SIZEOF_INT128__)
 __extension__ typedef unsigned __int128 u128;
@@ -22,9 +22,9 @@ __extension__ typedef unsigned __int128 u128;
 #endif
 
 static const char pairs[] =
-	"00010203040506070809101112131415161718192021222324252627282930313233"
-	"34353637383940414243444546474849505152535455565758596061626364656667"
-	"6869707172737475767778798081828384858687888990919293949596979899";
+    "00010203040506070809101112131415161718192021222324252627282930313233"
+    "34353637383940414243444546474849505152535455565758596061626364656667"
+    "6869707172737475767778798081828384858687888990919293949596979899";
 
 /* The decimal digits of u, at least min of them (zero-padded on the
  * left), written backwards so they end just before `end`; the start. */
@@ -120,9 +120,9 @@ static void drop_negative_zero(struct buf *b, size_t start)
 static bool exact_round(double v, int d, uint64_t *out)
 {
 #ifdef EMIT_HAVE_U128
-	static const uint32_t p10[] = { 1, 10, 100, 1000, 10000, 100000,
-		                        1000000, 10000000, 100000000,
-		                        1000000000 };
+	static const uint32_t p10[] = {1,         10,        100,     1000,
+	                               10000,     100000,    1000000, 10000000,
+	                               100000000, 1000000000};
 	uint64_t bits, m, q;
 	u128 x, rest, half;
 	int e, k;
@@ -169,8 +169,8 @@ static bool exact_round(double v, int d, uint64_t *out)
  */
 static inline bool near_round(double v, int d, uint64_t *q)
 {
-	static const double p10[] = { 1e0, 1e1, 1e2, 1e3, 1e4, 1e5, 1e6,
-		                      1e7, 1e8, 1e9 };
+	static const double p10[] = {1e0, 1e1, 1e2, 1e3, 1e4,
+	                             1e5, 1e6, 1e7, 1e8, 1e9};
 	double y = fabs(v) * p10[d], fr;
 
 	if (!(y < 4294967296.0))
@@ -187,8 +187,8 @@ static inline bool near_round(double v, int d, uint64_t *q)
  * copied out in fixed-size blocks (hence EMIT_FIXED_MAX of room). */
 static inline size_t fixed_chars(char *out, double v, int d)
 {
-	static const double lim[] = { 1e18, 1e17, 1e16, 1e15, 1e14, 1e13,
-		                      1e12, 1e11, 1e10, 1e9 };
+	static const double lim[] = {1e18, 1e17, 1e16, 1e15, 1e14,
+	                             1e13, 1e12, 1e11, 1e10, 1e9};
 	char tmp[48], *s, *p = out;
 	uint64_t q;
 	size_t ip;
@@ -508,8 +508,8 @@ static int digits(const char *s, int n, int *out)
 
 static int days_in_month(int y, int m)
 {
-	static const int dm[12] = { 31, 28, 31, 30, 31, 30,
-		                    31, 31, 30, 31, 30, 31 };
+	static const int dm[12] = {31, 28, 31, 30, 31, 30,
+	                           31, 31, 30, 31, 30, 31};
 	bool leap = (y % 4 == 0 && y % 100 != 0) || y % 400 == 0;
 
 	return m == 2 && leap ? 29 : dm[m - 1];
@@ -547,8 +547,8 @@ int emit_parse_time(const char *s, int64_t *out)
 	    digits(s + 14, 2, &mi) < 0 || s[16] != ':' ||
 	    digits(s + 17, 2, &se) < 0)
 		return -1;
-	if (mo < 1 || mo > 12 || d < 1 || d > days_in_month(y, mo) ||
-	    h > 23 || mi > 59 || se > 60)
+	if (mo < 1 || mo > 12 || d < 1 || d > days_in_month(y, mo) || h > 23 ||
+	    mi > 59 || se > 60)
 		return -1;
 	i = 19;
 	if (s[i] == '.') {
@@ -560,8 +560,8 @@ int emit_parse_time(const char *s, int64_t *out)
 	}
 	if (parse_offset(s + i, &off) < 0)
 		return -1;
-	*out = days_from_civil(y, mo, d) * 86400 + h * 3600 + mi * 60 + se -
-	       off;
+	*out =
+	    days_from_civil(y, mo, d) * 86400 + h * 3600 + mi * 60 + se - off;
 	return 0;
 }
 
@@ -690,8 +690,7 @@ static bool any_member(const struct emit_reading *er)
 /* The derived members after the layout's (values or flags); the first
  * written loses its comma when *first, which is cleared if any is. */
 static void science_members(struct buf *b, const struct emit_reading *er,
-                            const struct emit_sci *sc, bool flags,
-                            bool *first)
+                            const struct emit_sci *sc, bool flags, bool *first)
 {
 	const struct tp_derived_info *d;
 	size_t j;
@@ -759,8 +758,8 @@ static void head_a(struct buf *b, const struct emit_reading *er)
 
 	buf_add(b, LIT("{\"id\":\""));
 	json_chars(b, er->station);
-	buf_add(b, tmp, (size_t)(put_id_prefix(tmp, pk->time_s, id_seq(pk)) -
-	                         tmp));
+	buf_add(b, tmp,
+	        (size_t)(put_id_prefix(tmp, pk->time_s, id_seq(pk)) - tmp));
 }
 
 /* ","station":"..","seq":..,"layout":"..","time":" -- lname is the layout
@@ -816,14 +815,13 @@ static char *put_time_cached(char *p, int64_t t, int64_t *day, char *date)
 /* The record number and the reading time, with hb (head_b) between
  * them; day / date as for put_time_cached. */
 static void head_record(struct buf *b, const struct emit_reading *er,
-                        const char *hb, size_t hb_len, int64_t *day,
-                        char *date)
+                        const char *hb, size_t hb_len, int64_t *day, char *date)
 {
 	char *p = buf_room(b, 10 + hb_len + EMIT_TIME_LEN), tmp[20];
 
 	if (p == NULL) {
-		buf_add(b, tmp, (size_t)(put_u64(tmp, er->reading->record) -
-		                         tmp));
+		buf_add(b, tmp,
+		        (size_t)(put_u64(tmp, er->reading->record) - tmp));
 		buf_add(b, hb, hb_len);
 		emit_time(b, er->reading->time_s);
 		return;
@@ -913,22 +911,22 @@ static int plan_build(struct emit_plan *pl, const struct tp_layout *l)
  * the number of slots, and the header values bit for bit -- so a hit
  * writes exactly what building the pieces again would write.
  */
-#define PCACHE_STATION 128         /* longer station names: no cache */
-#define PCACHE_TEXT (256 * 1024)   /* longer pieces: no cache */
+#define PCACHE_STATION 128          /* longer station names: no cache */
+#define PCACHE_TEXT    (256 * 1024) /* longer pieces: no cache */
 
 struct emit_pcache {
 	const struct tp_layout *layout; /* NULL: nothing cached */
 	int64_t time_s, received_s;
 	uint64_t seq;
 	bool has_seq;
-	bool any_head;          /* JSON: a header member was written */
-	size_t ns;              /* n_slots of the reading */
-	size_t run;             /* CSV: leading columns in the pieces */
+	bool any_head; /* JSON: a header member was written */
+	size_t ns;     /* n_slots of the reading */
+	size_t run;    /* CSV: leading columns in the pieces */
 	struct tp_value head[TP_MAX_FIELDS];
 	char station[PCACHE_STATION];
 	struct buf text;
-	size_t cut[5];          /* piece i is text[cut[i] .. cut[i + 1]) */
-	int64_t day;            /* date[] is this day's (INT64_MIN: none) */
+	size_t cut[5]; /* piece i is text[cut[i] .. cut[i + 1]) */
+	int64_t day;   /* date[] is this day's (INT64_MIN: none) */
 	char date[EMIT_DATE_LEN];
 };
 
@@ -1124,8 +1122,8 @@ static inline char *member_at(char *p, const char *key, size_t key_len,
  * written loses its comma when *first.  Clears *first if any is written.
  * Written in place under one buf_room when there is room (pl->room). */
 static void plan_members(struct buf *b, const struct emit_plan *pl,
-                         const struct emit_reading *er, size_t from,
-                         size_t to, size_t n, bool flags, bool *first)
+                         const struct emit_reading *er, size_t from, size_t to,
+                         size_t n, bool flags, bool *first)
 {
 	const struct emit_col *c;
 	const struct tp_value *v;
@@ -1135,9 +1133,9 @@ static void plan_members(struct buf *b, const struct emit_plan *pl,
 	for (i = from; i < to && pl->cols[i].slot < n; i++) {
 		c = &pl->cols[i]; /* columns are in slot order */
 		v = &er->reading->values[c->slot];
-		q = p == NULL ? NULL :
-		    member_at(p, pl->text + c->key + skip, c->key_len - skip,
-		              c->form, v, flags);
+		q = p == NULL ? NULL
+		              : member_at(p, pl->text + c->key + skip,
+		                          c->key_len - skip, c->form, v, flags);
 		if (q == NULL) {
 			if (p != NULL)
 				buf_commit(b, p);
@@ -1177,9 +1175,8 @@ static void pcache_json(struct emit_pcache *pc, const struct emit_plan *pl,
 
 /* emit_json_planned from the cached pieces. */
 static void json_cached(struct buf *b, const struct emit_plan *pl,
-                        struct emit_pcache *pc,
-                        const struct emit_reading *er, size_t ns,
-                        const struct emit_sci *sc)
+                        struct emit_pcache *pc, const struct emit_reading *er,
+                        size_t ns, const struct emit_sci *sc)
 {
 	const char *s;
 	size_t n, hb_len;
@@ -1191,14 +1188,12 @@ static void json_cached(struct buf *b, const struct emit_plan *pl,
 	head_record(b, er, hb, hb_len, &pc->day, pc->date);
 	s = piece(pc, 2, &n);
 	buf_add(b, s, n);
-	plan_members(b, pl, er, pl->n_head_cols, pl->n_cols, ns, false,
-	             &first);
+	plan_members(b, pl, er, pl->n_head_cols, pl->n_cols, ns, false, &first);
 	science_members(b, er, sc, false, &first);
 	s = piece(pc, 3, &n);
 	buf_add(b, s, n);
 	first = !pc->any_head;
-	plan_members(b, pl, er, pl->n_head_cols, pl->n_cols, ns, true,
-	             &first);
+	plan_members(b, pl, er, pl->n_head_cols, pl->n_cols, ns, true, &first);
 	json_tail(b, er, sc, first);
 }
 
@@ -1256,11 +1251,11 @@ static char *put_piece(char *p, const struct emit_pcache *pc, int i)
 /* json_cached in one buf_room, when it fits and every number takes the
  * fast form; false (nothing written) otherwise. */
 static bool json_in_place(struct buf *b, const struct emit_plan *pl,
-                          struct emit_pcache *pc,
-                          const struct emit_reading *er, size_t ns)
+                          struct emit_pcache *pc, const struct emit_reading *er,
+                          size_t ns)
 {
 	char *p = buf_room(b, pc->text.len + 4 * 16 + 20 + EMIT_TIME_LEN +
-	                      2 * pl->room + 3);
+	                          2 * pl->room + 3);
 
 	if (p == NULL)
 		return false;
@@ -1509,8 +1504,8 @@ void emit_csv_header(struct buf *b, const struct emit_csv *c)
 
 /* ",value,flag" for one column (empty cells when absent or null);
  * n is n_slots(er), form the column's number form. */
-static void csv_value(struct buf *b, const struct emit_reading *er,
-                      size_t n, int slot, int form)
+static void csv_value(struct buf *b, const struct emit_reading *er, size_t n,
+                      int slot, int form)
 {
 	const struct tp_value *v;
 	char *p;
@@ -1586,8 +1581,8 @@ static void pcache_csv(struct emit_pcache *pc, const struct emit_csv *c,
 	size_t i;
 
 	buf_adds(t, er->station);
-	buf_add(t, tmp, (size_t)(put_id_prefix(tmp, pk->time_s, id_seq(pk)) -
-	                         tmp));
+	buf_add(t, tmp,
+	        (size_t)(put_id_prefix(tmp, pk->time_s, id_seq(pk)) - tmp));
 	pcache_cut(pc, 1, false, NULL);
 	buf_addc(t, ',');
 	buf_adds(t, er->station);
@@ -1680,8 +1675,7 @@ void emit_csv_row(struct buf *b, const struct emit_csv *c,
 }
 
 void emit_csv_row_sci(struct buf *b, const struct emit_csv *c,
-                      const struct emit_reading *er,
-                      const struct emit_sci *sc)
+                      const struct emit_reading *er, const struct emit_sci *sc)
 {
 	size_t li, i, ns;
 

@@ -63,7 +63,7 @@ struct emit_reading {
 	const char *station;            /* config name, or the number as text */
 	const struct tp_packet *packet; /* packet->layout is the layout */
 	const struct tp_reading *reading;
-	int64_t received_s;             /* Unix seconds the packet came in */
+	int64_t received_s; /* Unix seconds the packet came in */
 };
 
 /* Added for derived values and QC (process.h): what a reading carries
@@ -113,7 +113,7 @@ void emit_time(struct buf *b, int64_t t);
  * are accepted) into Unix seconds.  Returns 0, or -1 if s is not one.
  */
 int emit_parse_time(const char *s, int64_t *out)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 
 /* "<station>-<packet time>-<seq>-<record>", e.g. "rf2-1796020500-118-3". */
 void emit_id(struct buf *b, const char *station, int64_t packet_time_s,
@@ -137,22 +137,22 @@ void emit_json_sci(struct buf *b, const struct emit_reading *er,
  * releases.
  */
 struct emit_col {
-	size_t slot;            /* value slot */
-	int form;               /* decimals 0..9, or -1 f64, -2 f32 */
-	size_t key, key_len;    /* `,"name":` at text + key */
+	size_t slot;         /* value slot */
+	int form;            /* decimals 0..9, or -1 f64, -2 f32 */
+	size_t key, key_len; /* `,"name":` at text + key */
 };
 
 struct emit_plan {
 	const struct tp_layout *layout; /* not owned */
-	struct emit_col *cols;  /* value slots in slot order */
+	struct emit_col *cols;          /* value slots in slot order */
 	size_t n_cols;
-	size_t n_head_cols;     /* the first ones, header fields */
-	size_t room;            /* bytes all members may take in place */
-	char *text;             /* layout name as JSON string, then keys */
+	size_t n_head_cols; /* the first ones, header fields */
+	size_t room;        /* bytes all members may take in place */
+	char *text;         /* layout name as JSON string, then keys */
 	size_t name_len;
 };
 
-struct emit_pcache;             /* private to emit.c */
+struct emit_pcache; /* private to emit.c */
 
 struct emit_plans {
 	struct emit_plan *plan;
@@ -187,15 +187,15 @@ void emit_csv_cell(struct buf *b, const char *s, size_t n);
 struct emit_csv {
 	const struct tp_layout *const *layouts; /* not owned */
 	size_t n_layouts;
-	const char **names;    /* n_names value names (borrowed strings) */
+	const char **names; /* n_names value names (borrowed strings) */
 	size_t n_names;
-	int *slot;             /* [layout * n_names + column]: slot or -1 */
-	int *form;             /* same index: number form (struct emit_col) */
+	int *slot;              /* [layout * n_names + column]: slot or -1 */
+	int *form;              /* same index: number form (struct emit_col) */
 	struct emit_pcache *pc; /* what the last packet's rows share */
 	/* added by emit_csv_science (borrowed strings; arrays owned) */
-	const char **dnames;   /* derived value columns, after the above */
+	const char **dnames; /* derived value columns, after the above */
 	size_t n_dnames;
-	const char **qnames;   /* <name>_<test> columns, after those */
+	const char **qnames; /* <name>_<test> columns, after those */
 	size_t n_qnames;
 };
 
@@ -227,7 +227,6 @@ void emit_csv_header(struct buf *b, const struct emit_csv *c);
 void emit_csv_row(struct buf *b, const struct emit_csv *c,
                   const struct emit_reading *er);
 void emit_csv_row_sci(struct buf *b, const struct emit_csv *c,
-                      const struct emit_reading *er,
-                      const struct emit_sci *sc);
+                      const struct emit_reading *er, const struct emit_sci *sc);
 
 #endif

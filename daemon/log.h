@@ -17,9 +17,9 @@
 #include <stdbool.h>
 
 enum log_level {
-	LOG_LVL_ERR = 0,  /* something failed; an action was not done */
-	LOG_LVL_WARN,     /* something is wrong but work goes on */
-	LOG_LVL_INFO      /* what happened, for the operator */
+	LOG_LVL_ERR = 0, /* something failed; an action was not done */
+	LOG_LVL_WARN,    /* something is wrong but work goes on */
+	LOG_LVL_INFO     /* what happened, for the operator */
 };
 
 /* Keep lines of level <= lvl (default LOG_LVL_INFO). */

@@ -21,7 +21,7 @@
 
 #include "clock.h"
 
-#define LOOP_MAX_FDS 64
+#define LOOP_MAX_FDS    64
 #define LOOP_MAX_TIMERS 64
 
 struct loop;
@@ -30,11 +30,11 @@ typedef void (*loop_fd_fn)(void *arg, int fd, short revents);
 typedef void (*loop_timer_fn)(void *arg);
 
 struct loop_timer {
-	int64_t due_ms;           /* monotonic ms; valid when armed */
+	int64_t due_ms; /* monotonic ms; valid when armed */
 	bool armed;
 	loop_timer_fn fn;
 	void *arg;
-	int slot;                 /* private: index in the loop, or -1 */
+	int slot; /* private: index in the loop, or -1 */
 };
 
 /* A new loop on clock c (kept by pointer; must outlive the loop).
@@ -46,8 +46,8 @@ const struct clock *loop_clock(const struct loop *l);
 
 /* Watch fd for events (POLLIN/POLLOUT); replaces an earlier watch of the
  * same fd.  -1 with errno ENOSPC when LOOP_MAX_FDS are in use. */
-int loop_watch(struct loop *l, int fd, short events, loop_fd_fn fn,
-               void *arg) __attribute__((warn_unused_result));
+int loop_watch(struct loop *l, int fd, short events, loop_fd_fn fn, void *arg)
+    __attribute__((warn_unused_result));
 void loop_unwatch(struct loop *l, int fd);
 
 /* Set up a timer (not armed). */
@@ -56,7 +56,7 @@ void loop_timer_init(struct loop_timer *t, loop_timer_fn fn, void *arg);
 /* Arm t to fire once, delay_ms from now (re-arming moves it).  -1 with
  * errno ENOSPC when LOOP_MAX_TIMERS are armed. */
 int loop_timer_arm(struct loop *l, struct loop_timer *t, int64_t delay_ms)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 void loop_timer_disarm(struct loop *l, struct loop_timer *t);
 
 /* Poll once: wait until an fd is ready, the nearest timer is due, or

@@ -20,27 +20,24 @@ struct command {
 };
 
 static const struct command commands[] = {
-	{ "run", cmd_run, "the daemon: inputs -> ring file -> outputs, alerts",
-	  cmd_run_usage },
-	{ "decode", cmd_decode,
-	  "archived packets -> readings (NDJSON or CSV) on stdout",
-	  cmd_decode_usage },
-	{ "encode", cmd_encode,
-	  "readings (CSV) -> framed packets of a layout on stdout",
-	  cmd_encode_usage },
-	{ "replay", cmd_replay,
-	  "put archived packets into the ring for delivery",
-	  cmd_replay_usage },
-	{ "status", cmd_status,
-	  "what the running daemon knows: stations, outputs, alerts",
-	  cmd_status_usage },
-	{ "ring", cmd_ring, "inspect or verify the ring file",
-	  cmd_ring_usage },
-	{ "check", cmd_check, "validate a config and its layouts",
-	  cmd_check_usage },
-	{ "report", cmd_report,
-	  "readings -> an HTML page (time series, summary) or CSV summary",
-	  cmd_report_usage },
+    {"run", cmd_run, "the daemon: inputs -> ring file -> outputs, alerts",
+     cmd_run_usage},
+    {"decode", cmd_decode,
+     "archived packets -> readings (NDJSON or CSV) on stdout",
+     cmd_decode_usage},
+    {"encode", cmd_encode,
+     "readings (CSV) -> framed packets of a layout on stdout",
+     cmd_encode_usage},
+    {"replay", cmd_replay, "put archived packets into the ring for delivery",
+     cmd_replay_usage},
+    {"status", cmd_status,
+     "what the running daemon knows: stations, outputs, alerts",
+     cmd_status_usage},
+    {"ring", cmd_ring, "inspect or verify the ring file", cmd_ring_usage},
+    {"check", cmd_check, "validate a config and its layouts", cmd_check_usage},
+    {"report", cmd_report,
+     "readings -> an HTML page (time series, summary) or CSV summary",
+     cmd_report_usage},
 };
 
 #define N_COMMANDS (sizeof(commands) / sizeof(commands[0]))
@@ -65,14 +62,16 @@ static void list(FILE *fp)
 	      "Readings from coastal water-quality stations: decode their\n"
 	      "binary packets and deliver them.\n"
 	      "\n"
-	      "commands:\n", fp);
+	      "commands:\n",
+	      fp);
 	for (i = 0; i < N_COMMANDS; i++)
 		fprintf(fp, "  %-8s %s%s\n", commands[i].name,
 		        commands[i].summary,
 		        commands[i].run == NULL ? " (not built yet)" : "");
 	fputs("\n"
 	      "  tidepost help COMMAND   full usage of a command\n"
-	      "  tidepost --version      the version\n", fp);
+	      "  tidepost --version      the version\n",
+	      fp);
 }
 
 static int help(int argc, char **argv)
@@ -86,7 +85,8 @@ static int help(int argc, char **argv)
 	c = find(argv[2]);
 	if (c == NULL) {
 		log_err("tidepost: help: unknown command '%s'; see 'tidepost "
-		        "--help'", argv[2]);
+		        "--help'",
+		        argv[2]);
 		return CLI_EXIT_USAGE;
 	}
 	fputs(c->usage, stdout);

@@ -96,8 +96,8 @@ static const char *const w_flow[] = {"none", "rtscts", "xonxoff", NULL};
 static const char *const w_out[] = {"http", "file", NULL};
 static const char *const w_format[] = {"batch", "ndjson", "single", NULL};
 static const char *const w_alert[] = {"http", "exec", NULL};
-static const char *const w_pressure[] = {"auto", "field", "depth",
-                                         "station_depth", "none", NULL};
+static const char *const w_pressure[] = {"auto",          "field", "depth",
+                                         "station_depth", "none",  NULL};
 static const char *const w_boron[] = {"uppstrom1974", "lee2010", NULL};
 static const char *const w_kf[] = {"perez-fraga1987", "dickson-riley1979",
                                    NULL};
@@ -307,8 +307,8 @@ static const struct opt station_rows[] = {
        w_pressure, NULL,
        "sea pressure for salinity: auto = a pressure field, else a depth"
        " field, else depth_m, else 0"),
-    OX("carbonate", 0, 0, "uppstrom1974, perez-fraga1987",
-       "a carbonate object", "constants of the carbonate system"),
+    OX("carbonate", 0, 0, "uppstrom1974, perez-fraga1987", "a carbonate object",
+       "constants of the carbonate system"),
     OX("ph_temperature", 0, 0, "the in-situ temperature",
        "a number (degC) or a value name",
        "temperature the pH was measured at (adds ph_insitu)"),
@@ -356,8 +356,7 @@ static const struct opt qc_rows[] = {
     OX("multi_variate", 0, 0, "off", "{with, n_dev, with_n_dev, window_h}",
        "a step this value shows but the `with` value does not -> flag 3"),
     OU("gap_s", OFF(cfg_qc, gap_s), 0, 0, 0, "2 x expect_every_s", 1,
-       86400 * 366.0,
-       "gap test: this long since the previous value -> flag 9"),
+       86400 * 366.0, "gap test: this long since the previous value -> flag 9"),
 };
 TABLE(opt_qc, "qc", "stations.NUMBER.qc.VALUE", qc_rows, NULL);
 
@@ -381,8 +380,7 @@ static const struct opt co2_rows[] = {
     OW("kf", OFF(co2_in, kf), 0, 0, 0, "perez-fraga1987", w_kf, NULL,
        "HF constant: Perez & Fraga (1987) or Dickson & Riley (1979)"),
 };
-TABLE(opt_carbonate, "carbonate", "stations.NUMBER.carbonate", co2_rows,
-      NULL);
+TABLE(opt_carbonate, "carbonate", "stations.NUMBER.carbonate", co2_rows, NULL);
 
 static const struct opt ratio_rows[] = {
     OS("field", OFF(ratio_in, field), OPT_REQUIRED, 0, NULL,
@@ -394,7 +392,7 @@ TABLE(opt_ph_from_ratio, "ph_from_ratio", "stations.NUMBER.ph_from_ratio",
       ratio_rows, NULL);
 
 #define DIN(i, nm, what)                                                       \
-	OS(nm, OFF(din_in, name[i]), 0, 0, "by CF standard name",             \
+	OS(nm, OFF(din_in, name[i]), 0, 0, "by CF standard name",              \
 	   "a value name of the layouts", what)
 static const struct opt din_rows[] = {
     DIN(TP_DIN_TEMPERATURE, "temperature", "in-situ temperature, degC"),
@@ -435,14 +433,14 @@ static const struct opt battery_rows[] = {
        "critical alert below this voltage"),
     OU("median_n", OFF(cfg_battery, median_n), 0, 0, 5, "5", 1, 99,
        "low/critical judge the median of this many readings"),
-    ON("hysteresis_v", OFF(cfg_battery, hysteresis_v), 0, 0, 0.2, "0.2", 0,
-       10, "a low/critical alert clears this far above its level"),
+    ON("hysteresis_v", OFF(cfg_battery, hysteresis_v), 0, 0, 0.2, "0.2", 0, 10,
+       "a low/critical alert clears this far above its level"),
     OW("fit", OFF(cfg_battery, fit), 0, 0, 0, "theil_sen", w_fit, NULL,
        "how the voltage trend is fitted"),
     OU("trend_min_n", OFF(cfg_battery, trend_min_n), 0, 0, 8, "8", 3, 4096,
        "fewer readings in the window: no forecast"),
-    ON("flat_v_per_day", OFF(cfg_battery, flat_v_per_day), 0, 0, 0.02,
-       "0.02", 0, 100, "a slower fall is flat: no forecast"),
+    ON("flat_v_per_day", OFF(cfg_battery, flat_v_per_day), 0, 0, 0.02, "0.02",
+       0, 100, "a slower fall is flat: no forecast"),
 };
 TABLE(opt_battery, "battery", "stations.NUMBER.battery", battery_rows, NULL);
 
@@ -593,10 +591,11 @@ static const struct opt status_rows[] = {
 TABLE(opt_status, "status", "status", status_rows, NULL);
 
 static const struct opt_table *const all_tables[] = {
-    &opt_top,        &opt_layout, &opt_match,       &opt_length,   &opt_check,
-    &opt_crc,        &opt_field,  &opt_skip,        &opt_records,  &opt_station,
-    &opt_alkalinity, &opt_qc,     &opt_climatology, &opt_battery,  &opt_input,
-    &opt_ring,       &opt_output, &opt_alerts,      &opt_alert_to, &opt_status,
+    &opt_top,           &opt_layout,    &opt_match,         &opt_length,
+    &opt_check,         &opt_crc,       &opt_field,         &opt_skip,
+    &opt_records,       &opt_station,   &opt_alkalinity,    &opt_qc,
+    &opt_climatology,   &opt_battery,   &opt_input,         &opt_ring,
+    &opt_output,        &opt_alerts,    &opt_alert_to,      &opt_status,
     &opt_multi_variate, &opt_carbonate, &opt_ph_from_ratio, &opt_derive_inputs,
 };
 

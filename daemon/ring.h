@@ -71,64 +71,64 @@
 
 #include "ringio.h"
 
-#define RING_PAYLOAD_MAX 4072u      /* record of 4096 bytes at most */
+#define RING_PAYLOAD_MAX 4072u /* record of 4096 bytes at most */
 #define RING_OUTPUTS_MAX 8u
-#define RING_NAME_MAX 31u           /* output name bytes, without NUL */
-#define RING_SIZE_MIN 40960u        /* 2 slots + 32 KiB of data */
-#define RING_BLOCK 4096u            /* sizes are multiples of this */
+#define RING_NAME_MAX    31u    /* output name bytes, without NUL */
+#define RING_SIZE_MIN    40960u /* 2 slots + 32 KiB of data */
+#define RING_BLOCK       4096u  /* sizes are multiples of this */
 
 struct ring;
 
 /* Results of ring_append (callers must branch on them). */
 enum ring_rc {
 	RING_OK = 0,
-	RING_FULL,          /* no room without overwriting unacknowledged
-	                     * records: refused and counted, nothing lost */
-	RING_BATCH_FULL,    /* the commit batch is full: ring_commit, then
-	                     * append again (not counted as a refusal) */
-	RING_ERR,           /* bad argument or failed ring: see errno */
+	RING_FULL,       /* no room without overwriting unacknowledged
+	                  * records: refused and counted, nothing lost */
+	RING_BATCH_FULL, /* the commit batch is full: ring_commit, then
+	                  * append again (not counted as a refusal) */
+	RING_ERR,        /* bad argument or failed ring: see errno */
 };
 
 struct ring_output_stat {
 	char name[RING_NAME_MAX + 1];
-	uint64_t acked;             /* last acknowledged seq (0: none) */
-	uint64_t unsent;            /* accepted records after acked */
+	uint64_t acked;  /* last acknowledged seq (0: none) */
+	uint64_t unsent; /* accepted records after acked */
 };
 
 struct ring_stat {
-	uint64_t size_bytes;        /* whole file */
-	uint64_t data_bytes;        /* data area */
-	uint64_t used_bytes;        /* data area held by kept records */
-	uint64_t oldest_seq;        /* first kept record (== next_seq: none) */
-	uint64_t newest_seq;        /* last accepted (0: none yet) */
-	uint64_t next_seq;          /* seq the next ring_append gets */
-	uint64_t staged;            /* appended, not yet committed */
-	uint64_t records;           /* kept records */
-	uint64_t refused;           /* appends refused as full, this open */
-	uint64_t generation;        /* of the last durable header */
-	uint64_t tail_off, head_off;  /* file offsets of oldest kept record
-	                               * and of the next record to write */
-	uint64_t recovered_lost;    /* records the header vouched for but
-	                             * recovery found damaged (normally 0) */
-	uint64_t recovery_us;       /* time ring_open spent recovering */
-	int failed;                 /* errno of the failure, 0 if healthy */
+	uint64_t size_bytes;         /* whole file */
+	uint64_t data_bytes;         /* data area */
+	uint64_t used_bytes;         /* data area held by kept records */
+	uint64_t oldest_seq;         /* first kept record (== next_seq: none) */
+	uint64_t newest_seq;         /* last accepted (0: none yet) */
+	uint64_t next_seq;           /* seq the next ring_append gets */
+	uint64_t staged;             /* appended, not yet committed */
+	uint64_t records;            /* kept records */
+	uint64_t refused;            /* appends refused as full, this open */
+	uint64_t generation;         /* of the last durable header */
+	uint64_t tail_off, head_off; /* file offsets of oldest kept record
+	                              * and of the next record to write */
+	uint64_t recovered_lost;     /* records the header vouched for but
+	                              * recovery found damaged (normally 0) */
+	uint64_t recovery_us;        /* time ring_open spent recovering */
+	int failed;                  /* errno of the failure, 0 if healthy */
 	size_t n_outputs;
 	struct ring_output_stat outputs[RING_OUTPUTS_MAX];
 };
 
 struct ring_verify_report {
-	uint64_t records;           /* valid records checked */
-	uint64_t problems;          /* problems found */
-	int slot_ok[2];             /* header slot valid? */
-	uint64_t slot_gen[2];       /* generation when valid */
-	char first[160];            /* the first problem, "" if none */
+	uint64_t records;     /* valid records checked */
+	uint64_t problems;    /* problems found */
+	int slot_ok[2];       /* header slot valid? */
+	uint64_t slot_gen[2]; /* generation when valid */
+	char first[160];      /* the first problem, "" if none */
 };
 
 /* Sequential reader, e.g. for one output from its cursor.  Plain data;
  * stays usable across commits and acks, until its seq is freed. */
 struct ring_iter {
-	uint64_t seq;               /* next seq to return */
-	uint64_t off;               /* its place, when known */
+	uint64_t seq; /* next seq to return */
+	uint64_t off; /* its place, when known */
 	uint32_t lap;
 	int known;
 };
@@ -140,9 +140,8 @@ struct ring_iter {
  * POSIX calls.  On failure returns -1 with errno and a complete message
  * ("ring: open: PATH: cause") in errbuf (errcap bytes). */
 int ring_open(const char *path, uint64_t size_bytes,
-              const struct ringio_ops *ops, struct ring **out,
-              char *errbuf, size_t errcap)
-	__attribute__((warn_unused_result));
+              const struct ringio_ops *ops, struct ring **out, char *errbuf,
+              size_t errcap) __attribute__((warn_unused_result));
 
 /* Discard staged records (not accepted), write a last header when the
  * ring is healthy, close and free.  Returns -1 (errno) if that last sync
@@ -153,37 +152,37 @@ int ring_close(struct ring *r);
  * RING_NAME_MAX bytes, unique).  New ones start at the tail, missing ones
  * are dropped; the change is made durable before returning 0. */
 int ring_outputs(struct ring *r, const char *const *names, size_t n)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 
 /* Stage one record (len 1..RING_PAYLOAD_MAX).  No I/O; not accepted
  * until ring_commit returns 0. */
 enum ring_rc ring_append(struct ring *r, const void *payload, size_t len)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 
 /* Write the staged records and fdatasync (one sync per batch); only then
  * are they accepted.  *last_seq gets the last accepted seq (0: none yet).
  * On failure the staged records are not accepted and the ring is failed:
  * -1 with errno. */
 int ring_commit(struct ring *r, uint64_t *last_seq)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 
 /* Copy the payload of accepted record seq into buf (cap bytes); *len gets
  * its length.  -1 with errno: ENOENT (freed or not accepted), EMSGSIZE
  * (cap too small; *len is the size needed), EBADMSG (damaged), EIO. */
-int ring_read(struct ring *r, uint64_t seq, void *buf, size_t cap,
-              size_t *len) __attribute__((warn_unused_result));
+int ring_read(struct ring *r, uint64_t seq, void *buf, size_t cap, size_t *len)
+    __attribute__((warn_unused_result));
 
 /* Start a reader at the record after after_seq (e.g. an output's
  * cursor).  ring_iter_next: 1 and the record, 0 at the end of accepted
  * records, -1 with errno (ENOENT once the reader's seq was freed). */
 void ring_iter_init(struct ring_iter *it, uint64_t after_seq);
-int ring_iter_next(struct ring *r, struct ring_iter *it, void *buf,
-                   size_t cap, size_t *len, uint64_t *seq)
-	__attribute__((warn_unused_result));
+int ring_iter_next(struct ring *r, struct ring_iter *it, void *buf, size_t cap,
+                   size_t *len, uint64_t *seq)
+    __attribute__((warn_unused_result));
 
 /* The output's last acknowledged seq.  -1 ENOENT if unknown. */
 int ring_cursor_get(const struct ring *r, const char *output, uint64_t *seq)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 
 /* The output has delivered everything up to seq: write the header to the
  * other slot (gen + 1) and fdatasync; 0 only once durable.  Space freed
@@ -191,20 +190,20 @@ int ring_cursor_get(const struct ring *r, const char *output, uint64_t *seq)
  * output), EINVAL (seq behind the cursor or past the last accepted), or
  * the I/O error (the ring is then failed). */
 int ring_ack(struct ring *r, const char *output, uint64_t seq)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 
 void ring_stat(const struct ring *r, struct ring_stat *st);
 
 /* Check both header slots and every kept record.  Returns the number of
  * problems (0: clean) or -1 with errno on an I/O error. */
 int ring_verify(struct ring *r, struct ring_verify_report *rep)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 
 /* After a failure: re-read the file, keep only what was durable (records
  * up to the last good commit, cursors of the last good header), zero the
  * rest, write a new header and sync.  0: healthy again. */
 int ring_recover(struct ring *r, char *errbuf, size_t errcap)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 
 /*
  * TEST-ONLY MUTATION SWITCH - never set outside the mutation test.

@@ -58,13 +58,13 @@ struct ringio_ops {
 	ssize_t (*pwrite)(void *ctx, int fd, const void *buf, size_t n,
 	                  uint64_t off);
 	int (*fdatasync)(void *ctx, int fd);
-	int (*fsync)(void *ctx, int fd);       /* files and directories */
+	int (*fsync)(void *ctx, int fd); /* files and directories */
 	int (*ftruncate)(void *ctx, int fd, uint64_t len);
-	int (*close)(void *ctx, int fd);       /* fd is gone even on error */
+	int (*close)(void *ctx, int fd); /* fd is gone even on error */
 	int (*rename)(void *ctx, const char *from, const char *to);
 	int (*unlink)(void *ctx, const char *path);
-	int (*size)(void *ctx, int fd, uint64_t *len);      /* fstat */
-	int (*lock)(void *ctx, int fd);   /* exclusive, non-blocking */
+	int (*size)(void *ctx, int fd, uint64_t *len); /* fstat */
+	int (*lock)(void *ctx, int fd); /* exclusive, non-blocking */
 	/* bytes an unprivileged writer may still allocate under dir */
 	int (*free_bytes)(void *ctx, const char *dir, uint64_t *bytes);
 	/* forget the file's clean cached pages so later reads come from
@@ -84,28 +84,28 @@ int ringio_read_all(const struct ringio_ops *o, int fd, void *buf, size_t n,
                     uint64_t off) __attribute__((warn_unused_result));
 int ringio_write_all(const struct ringio_ops *o, int fd, const void *buf,
                      size_t n, uint64_t off)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 int ringio_datasync(const struct ringio_ops *o, int fd)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 int ringio_fullsync(const struct ringio_ops *o, int fd)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 int ringio_open(const struct ringio_ops *o, const char *path, int flags,
                 mode_t mode) __attribute__((warn_unused_result));
 /* The other calls, with EINTR retried (close is never retried: the fd is
  * gone whatever it returns). */
 int ringio_unlink(const struct ringio_ops *o, const char *path)
-	__attribute__((warn_unused_result));
-int ringio_rename(const struct ringio_ops *o, const char *from,
-                  const char *to) __attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
+int ringio_rename(const struct ringio_ops *o, const char *from, const char *to)
+    __attribute__((warn_unused_result));
 int ringio_size(const struct ringio_ops *o, int fd, uint64_t *len)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 int ringio_lock(const struct ringio_ops *o, int fd)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 int ringio_free_bytes(const struct ringio_ops *o, const char *dir,
                       uint64_t *bytes) __attribute__((warn_unused_result));
 /* fsync the directory holding path ("." when path has no '/'). */
 int ringio_sync_dir(const struct ringio_ops *o, const char *path)
-	__attribute__((warn_unused_result));
+    __attribute__((warn_unused_result));
 
 /* ---- memdisk: the simulated disk for tests ---- */
 
@@ -129,17 +129,18 @@ enum memdisk_op {
 };
 #define MEMDISK_ALL_OPS 0x1fffu
 /* calls that change what is on disk: the places a power cut can fall */
-#define MEMDISK_MUTATING (MEMDISK_PWRITE | MEMDISK_FDATASYNC | \
-	MEMDISK_FSYNC | MEMDISK_FTRUNCATE | MEMDISK_RENAME | MEMDISK_UNLINK)
+#define MEMDISK_MUTATING                                                       \
+	(MEMDISK_PWRITE | MEMDISK_FDATASYNC | MEMDISK_FSYNC |                  \
+	 MEMDISK_FTRUNCATE | MEMDISK_RENAME | MEMDISK_UNLINK)
 
-#define MEMDISK_SHORT (-1)       /* fault errno: a short transfer */
+#define MEMDISK_SHORT   (-1) /* fault errno: a short transfer */
 #define MEMDISK_FOREVER UINT32_MAX
 
 struct memdisk_fault {
-	uint64_t at;        /* 1-based index among counted calls; 0: none */
-	uint32_t count;     /* calls that fail from `at` (MEMDISK_FOREVER) */
-	unsigned mask;      /* which kinds are counted (enum memdisk_op) */
-	int err;            /* EIO, ENOSPC, EINTR, ... or MEMDISK_SHORT */
+	uint64_t at;    /* 1-based index among counted calls; 0: none */
+	uint32_t count; /* calls that fail from `at` (MEMDISK_FOREVER) */
+	unsigned mask;  /* which kinds are counted (enum memdisk_op) */
+	int err;        /* EIO, ENOSPC, EINTR, ... or MEMDISK_SHORT */
 };
 
 /* How a power cut treats pending writes: probabilities in percent of
@@ -186,8 +187,8 @@ void memdisk_powercut(struct memdisk *d, const struct memdisk_cutmix *mix);
 int memdisk_cut_torn(struct memdisk *d, const char *path, long which,
                      size_t keep, int fill);
 /* Number of pending writes of path and the offset/length of one. */
-int memdisk_pending_write(const struct memdisk *d, const char *path,
-                          size_t i, uint64_t *off, size_t *len);
+int memdisk_pending_write(const struct memdisk *d, const char *path, size_t i,
+                          uint64_t *off, size_t *len);
 
 /* Direct access to the live image of a file, for damage tests: copy out
  * or overwrite bytes (no pending write is queued, both images change, as
