@@ -74,3 +74,4 @@ echo "$nd $csv $floor $py" | awk -v r="$R" -v pyr="$PYR" -v n="$N" -v pyn="$PYN"
 	rss = ($2 > $6 ? $2 : $6) / 1024
 	printf "  tidepost peak RSS : %.2f MiB (VmHWM)          target < 4 MB\n", rss
 }'
+sh "$DIR/relay/run.sh" "$BUILD"
