@@ -108,6 +108,9 @@ struct run {
 	struct outp out[RING_OUTPUTS_MAX];
 	size_t n_out;
 	struct monitor *mon; /* watchdog, alerts, status (monitor.h) */
+	/* the http outputs as the monitor sees them: it keeps this pointer,
+	 * so the array lives as long as r->mon */
+	struct post *mon_posts[RING_OUTPUTS_MAX];
 	char replay_dir[4096];
 	enum phase phase;
 	bool done;
@@ -368,13 +371,13 @@ static void on_commit(void *arg, bool ok, uint64_t n)
 /* The watchdog, alerts and status files on cfg and the outputs. */
 static int start_monitor(struct run *r, const struct config *cfg)
 {
-	struct post *posts[RING_OUTPUTS_MAX];
 	size_t i, n = 0;
 
-	for (i = 0; i < r->n_out; i++)
+	for (i = 0; i < r->n_out && n < RING_OUTPUTS_MAX; i++)
 		if (r->out[i].post != NULL)
-			posts[n++] = r->out[i].post;
-	return monitor_new(cfg, r->loop, r->ring, r->ing, posts, n, &r->mon);
+			r->mon_posts[n++] = r->out[i].post;
+	return monitor_new(cfg, r->loop, r->ring, r->ing, r->mon_posts, n,
+	                   &r->mon);
 }
 
 /* Inputs, ring cursors and outputs of cfg.  0, or -1 (logged; what was
