@@ -49,7 +49,7 @@ for t in $targets; do
 		continue
 	fi
 	work="$OUT/work/$t"; art="$OUT/artifacts/$t/"
-	rm -rf "$work"; mkdir -p "$work" "$art"
+	rm -rf "$work" "$art"; mkdir -p "$work" "$art"
 	[ -d "tests/fuzz/corpus/$t" ] && cp tests/fuzz/corpus/"$t"/* "$work"/ 2>/dev/null
 	dict=""
 	[ -f "tests/fuzz/$t.dict" ] && dict="-dict=tests/fuzz/$t.dict"
