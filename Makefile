@@ -112,6 +112,11 @@ check: deps
 	$(MAKE) unit
 	$(MAKE) fuzz-replay
 	$(MAKE) integration
+	$(MAKE) check-asan
+	$(MAKE) check-valgrind
+	$(MAKE) check-coverage
+	$(MAKE) oom
+	$(MAKE) lint
 
 fuzz: deps
 	@sh tests/fuzz/run-fuzz.sh $(or $(FUZZ_SECONDS),60)
@@ -250,8 +255,10 @@ cross-armhf:
 ASAN_BUILD    ?= $(BUILD)-asan
 COV_BUILD     ?= $(BUILD)-cov
 GATE_JOBS     ?= 2
-FLOOR_DECODER ?= 90
-FLOOR_RING    ?= 85
+# line coverage floors (percent); measured when set: decoder/ 95.97,
+# ring.c 92.04 (unit tests + fuzz replay + oom torture, gcc 12 -O0)
+FLOOR_DECODER ?= 93
+FLOOR_RING    ?= 90
 GCOV          ?= gcov
 LONG_FUZZ_SECONDS ?= 3600
 LONG_KILL_ROUNDS  ?= 10000

@@ -194,37 +194,82 @@ static bool have_name(const struct postbody *pb, const char *name)
 	return false;
 }
 
-/* One "name":{"unit":..,"standard_name":..} member per new name. */
+/* One "name":{"unit":..,"standard_name":..} member for a new name. */
+static void add_quantity(struct postbody *pb, const char *name)
+{
+	const char *sent = renamed(pb->o, name), *unit, *std;
+
+	if (strlen(sent) > POSTBODY_NAME_MAX || have_name(pb, sent) ||
+	    pb->n_names == POSTBODY_NAMES_MAX ||
+	    !postbody_quantity(pb->cfg, name, &unit, &std) ||
+	    (unit == NULL && std == NULL))
+		return;
+	memcpy(pb->names[pb->n_names++], sent, strlen(sent) + 1);
+	if (pb->quant.len > 0)
+		buf_addc(&pb->quant, ',');
+	emit_json_string(&pb->quant, sent);
+	buf_addc(&pb->quant, ':');
+	buf_addc(&pb->quant, '{');
+	if (unit != NULL) {
+		buf_adds(&pb->quant, "\"unit\":");
+		emit_json_string(&pb->quant, unit);
+	}
+	if (std != NULL) {
+		buf_adds(&pb->quant, unit != NULL ? "," : "");
+		buf_adds(&pb->quant, "\"standard_name\":");
+		emit_json_string(&pb->quant, std);
+	}
+	buf_addc(&pb->quant, '}');
+}
+
 static void add_quantities(struct postbody *pb, const cJSON *values)
 {
-	const char *sent, *unit, *std;
 	const cJSON *c;
 
 	cJSON_ArrayForEach(c, values)
 	{
-		sent = renamed(pb->o, c->string);
-		if (strlen(sent) > POSTBODY_NAME_MAX || have_name(pb, sent) ||
-		    pb->n_names == POSTBODY_NAMES_MAX ||
-		    !postbody_quantity(pb->cfg, c->string, &unit, &std) ||
-		    (unit == NULL && std == NULL))
-			continue;
-		memcpy(pb->names[pb->n_names++], sent, strlen(sent) + 1);
-		if (pb->quant.len > 0)
-			buf_addc(&pb->quant, ',');
-		emit_json_string(&pb->quant, sent);
-		buf_addc(&pb->quant, ':');
-		buf_addc(&pb->quant, '{');
-		if (unit != NULL) {
-			buf_adds(&pb->quant, "\"unit\":");
-			emit_json_string(&pb->quant, unit);
-		}
-		if (std != NULL) {
-			buf_adds(&pb->quant, unit != NULL ? "," : "");
-			buf_adds(&pb->quant, "\"standard_name\":");
-			emit_json_string(&pb->quant, std);
-		}
-		buf_addc(&pb->quant, '}');
+		add_quantity(pb, c->string);
 	}
+}
+
+/*
+ * The fast path for a reading tidepost wrote itself: the keys of its
+ * "values" object, whose members are plain names (no escapes) holding
+ * numbers or null.  Returns false when the text is not of that simple
+ * shape; the caller then parses it with cJSON (names added so far are
+ * not added twice: add_quantity skips known names).
+ */
+static bool scan_values(struct postbody *pb, const char *json, size_t len)
+{
+	static const char key[] = "\"values\":{";
+	const char *p = memmem(json, len, key, sizeof(key) - 1);
+	const char *end = json + len, *q;
+	char name[POSTBODY_NAME_MAX + 1];
+	size_t k;
+
+	if (p == NULL)
+		return false;
+	for (p += sizeof(key) - 1; p < end && *p != '}'; p = q + 1) {
+		if (*p != '"')
+			return false;
+		for (k = 0, p++; p + k < end && p[k] != '"'; k++)
+			if (p[k] == '\\' || k == POSTBODY_NAME_MAX)
+				return false;
+		if (p + k + 1 >= end || p[k + 1] != ':' || k == 0)
+			return false;
+		memcpy(name, p, k);
+		name[k] = '\0';
+		add_quantity(pb, name);
+		q = p + k + 2;
+		while (q < end && strchr("0123456789+-.eEnul", *q) != NULL &&
+		       *q != '\0')
+			q++;
+		if (q >= end || (*q != ',' && *q != '}'))
+			return false;
+		if (*q == '}')
+			q--;
+	}
+	return p < end;
 }
 
 static bool looks_like_object(const char *json, size_t len)
@@ -245,6 +290,11 @@ static enum postbody_rc render(struct postbody *pb, const char *json,
 	char *txt;
 
 	buf_reset(&pb->one);
+	if (!pb->transform && pb->format == CFG_FMT_BATCH &&
+	    looks_like_object(json, len) && scan_values(pb, json, len)) {
+		buf_add(&pb->one, json, len); /* byte for byte */
+		return buf_failed(&pb->one) ? POSTBODY_NOMEM : POSTBODY_OK;
+	}
 	if (!pb->transform && pb->format != CFG_FMT_BATCH) {
 		if (!looks_like_object(json, len))
 			return POSTBODY_BAD;

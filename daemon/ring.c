@@ -95,6 +95,7 @@ struct ring {
 	char *path;
 	uint64_t size, dstart;
 	struct tp_crc crc;
+	bool hw_crc;           /* CRC-32C by the CPU's instruction (x86) */
 	uint64_t gen;          /* last durable header */
 	int dslot;             /* its slot */
 	struct pos tail, head; /* durable tail, committed head */
@@ -203,13 +204,65 @@ static int fail(struct ring *r, int err)
 	return -1;
 }
 
+#if defined(__x86_64__) && defined(__GNUC__)
+/* SSE4.2's crc32 instruction computes the reflected CRC-32C register
+ * update, the same as the table engine's for CRC-32/ISCSI; used only when
+ * the CPU has it and it agrees with the catalogue check value. */
+__attribute__((target("sse4.2"))) static uint32_t
+crc32c_hw(uint32_t reg, const void *data, size_t n)
+{
+	const unsigned char *p = data;
+	uint64_t v;
+
+	for (; n >= 8; n -= 8, p += 8) {
+		memcpy(&v, p, 8);
+		reg = (uint32_t)__builtin_ia32_crc32di(reg, v);
+	}
+	for (; n > 0; n--, p++)
+		reg = __builtin_ia32_crc32qi(reg, *p);
+	return reg;
+}
+
+static bool hw_crc_works(const struct tp_crc *c)
+{
+	uint32_t reg;
+
+	__builtin_cpu_init();
+	if (!__builtin_cpu_supports("sse4.2"))
+		return false;
+	reg = crc32c_hw(tp_crc_start(c), "123456789", 9);
+	return tp_crc_final(c, reg) == crc32c_params.check;
+}
+#else
+static uint32_t crc32c_hw(uint32_t reg, const void *data, size_t n)
+{
+	(void)data;
+	(void)n;
+	return reg;
+}
+
+static bool hw_crc_works(const struct tp_crc *c)
+{
+	(void)c;
+	return false;
+}
+#endif
+
+static uint32_t crc_update(const struct ring *r, uint32_t reg, const void *data,
+                           size_t n)
+{
+	if (r->hw_crc)
+		return crc32c_hw(reg, data, n);
+	return tp_crc_update(&r->crc, reg, data, n);
+}
+
 static uint32_t rec_crc(const struct ring *r, const unsigned char *hdr,
                         const void *payload, size_t len)
 {
 	uint32_t reg = tp_crc_start(&r->crc);
 
-	reg = tp_crc_update(&r->crc, reg, hdr, 20);
-	reg = tp_crc_update(&r->crc, reg, payload, len);
+	reg = crc_update(r, reg, hdr, 20);
+	reg = crc_update(r, reg, payload, len);
 	return tp_crc_final(&r->crc, reg);
 }
 
@@ -758,6 +811,8 @@ static int crc_ready(struct ring *r)
 		errno = EINVAL;
 		return -1;
 	}
+	r->hw_crc =
+	    getenv("TIDEPOST_SOFT_CRC") == NULL && hw_crc_works(&r->crc);
 	return 0;
 }
 

@@ -232,8 +232,8 @@ def test_exit_codes_and_signals():
     codes = set()
     for h in glob.glob("daemon/cli*.h"):     # cli.h, cli_run.h, ...
         with open(h) as f:
-            codes |= set(re.findall(r"#define \w+_EXIT_\w+ (\d+)",
-                                    f.read()))
+            codes |= set(re.findall(r"^#define\s+\w+_EXIT_\w+\s+(\d+)\b",
+                                    f.read(), re.M))
     codes = sorted(codes)
     assert "2" in codes, "no exit codes found in daemon/cli*.h"
     page = sections(text("man/tidepost.1"))
