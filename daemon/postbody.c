@@ -302,6 +302,10 @@ static enum postbody_rc render(struct postbody *pb, const char *json,
 		return buf_failed(&pb->one) ? POSTBODY_NOMEM : POSTBODY_OK;
 	}
 	root = cJSON_ParseWithLength(json, len);
+	if (root == NULL && looks_like_object(json, len))
+		return POSTBODY_NOMEM; /* our own readings parse: out of memory
+		                        * is the likely cause, so retry later
+		                        * rather than dead-letter real data */
 	if (!cJSON_IsObject(root)) {
 		cJSON_Delete(root);
 		return POSTBODY_BAD;

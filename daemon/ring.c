@@ -647,8 +647,10 @@ static int create(struct ring *r, const char *path, char *err, size_t cap)
 	char *tmp = malloc(n + 5);
 	int fd = -1, saved;
 
-	if (tmp == NULL)
+	if (tmp == NULL) {
+		msg(err, cap, "create", path, strerror(errno));
 		return -1;
+	}
 	memcpy(tmp, path, n);
 	memcpy(tmp + n, ".tmp", 5);
 	if (space_check(r, path, err, cap) != 0)
