@@ -44,6 +44,7 @@
 #include "emit.h"
 #include "log.h"
 #include "process.h"
+#include "progress.h"
 
 #define DECODE_READ_BYTES   (64 * 1024)
 #define DECODE_LINE_MAX     (1024 * 1024) /* one output line, at most */
@@ -105,6 +106,8 @@ struct decode {
 	struct buf out; /* lines not yet written to stdout */
 	uint64_t frames, packets, readings;
 	uint64_t bad_check, unknown, broken, undecodable, unreadable;
+	uint64_t done_bytes; /* read so far, for the progress line */
+	struct progress pg;
 	bool write_failed;
 	uint32_t warned[DECODE_MAX_WARNED];
 	size_t n_warned;
@@ -209,6 +212,7 @@ static const char *station_of(struct decode *d, uint32_t number, char *tmp,
 	}
 	if (d->n_warned < DECODE_MAX_WARNED) {
 		d->warned[d->n_warned++] = number;
+		progress_clear(&d->pg);
 		log_warn("decode: station %" PRIu32 ": not in the config",
 		         number);
 	} else if (d->n_warned++ == DECODE_MAX_WARNED) {
@@ -363,6 +367,7 @@ static void decode_records(struct decode *d, const struct decode_input *in)
 		st = decode_line(d, k, &er);
 		if (st != TP_OK) {
 			d->undecodable++;
+			progress_clear(&d->pg);
 			log_warn("decode: %s: offset %" PRIu64
 			         ": record %" PRIu32 ": %s",
 			         in->name, in->fr.frame_start, k,
@@ -406,6 +411,7 @@ static void decode_reject(struct decode *d, const struct decode_input *in,
 	va_start(ap, fmt);
 	vsnprintf(why, sizeof(why), fmt, ap);
 	va_end(ap);
+	progress_clear(&d->pg);
 	log_info("decode: %s: offset %" PRIu64 ": %s", in->name,
 	         in->fr.frame_start, why);
 }
@@ -487,6 +493,8 @@ static int decode_stream(struct decode *d, struct decode_input *in)
 		if (n == 0 || d->write_failed)
 			break;
 		decode_chunk(d, in, (size_t)n);
+		d->done_bytes += (uint64_t)n;
+		progress_update(&d->pg, d->done_bytes, d->readings);
 	}
 	decode_result(d, in, tp_frame_finish(&in->fr));
 	return 0;
@@ -647,12 +655,29 @@ static void decode_held(struct decode *d)
 }
 
 /* Decode every input; the exit status. */
+/* Sum of the regular files' sizes, for the progress line (0: unknown). */
+static uint64_t input_bytes(int nfiles, char **files)
+{
+	uint64_t total = 0;
+	struct stat sb;
+	int i;
+
+	for (i = 0; i < nfiles; i++)
+		if (strcmp(files[i], "-") != 0 && stat(files[i], &sb) == 0 &&
+		    S_ISREG(sb.st_mode))
+			total += (uint64_t)sb.st_size;
+	return total;
+}
+
 static int decode_run(struct decode *d, int nfiles, char **files)
 {
 	int i;
 
 	if (decode_start(d) < 0)
 		return CLI_EXIT_USAGE;
+	progress_start(&d->pg, "decode", "bytes", input_bytes(nfiles, files));
+	if (isatty(STDOUT_FILENO))
+		d->pg.on = false; /* never mixed with readings on a terminal */
 	if (nfiles == 0)
 		decode_file(d, "-");
 	for (i = 0; i < nfiles && !d->write_failed; i++)
@@ -663,6 +688,7 @@ static int decode_run(struct decode *d, int nfiles, char **files)
 		log_err("decode: write: stdout: %s", strerror(errno));
 		d->write_failed = true;
 	}
+	progress_end(&d->pg);
 	decode_summary(d);
 	if (d->unreadable > 0 || d->write_failed)
 		return CLI_EXIT_USAGE;
