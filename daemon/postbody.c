@@ -281,6 +281,40 @@ static bool looks_like_object(const char *json, size_t len)
 	return i < len && json[i] == '{' && memchr(json, '\0', len) == NULL;
 }
 
+/* One JSON object whose braces and brackets balance outside strings, with
+ * nothing after it but blanks?  Checked without allocating, to tell a
+ * parse that ran out of memory from a text that is not JSON at all. */
+static bool balanced_object(const char *json, size_t len)
+{
+	size_t i = 0, depth = 0;
+	bool in_str = false;
+
+	while (i < len && strchr(" \t\r\n", json[i]) != NULL && json[i])
+		i++;
+	if (i == len || json[i] != '{')
+		return false;
+	for (; i < len; i++) {
+		char c = json[i];
+
+		if (in_str) {
+			if (c == '\\')
+				i++;
+			else if (c == '"')
+				in_str = false;
+		} else if (c == '"') {
+			in_str = true;
+		} else if (c == '{' || c == '[') {
+			depth++;
+		} else if ((c == '}' || c == ']') && depth-- == 1) {
+			break;
+		}
+	}
+	for (i = i < len ? i + 1 : i; i < len; i++)
+		if (strchr(" \t\r\n", json[i]) == NULL || json[i] == '\0')
+			return false;
+	return depth == 0 && !in_str;
+}
+
 /* Put the reading as it will be sent into pb->one; new quantities into
  * pb->quant (batch format). */
 static enum postbody_rc render(struct postbody *pb, const char *json,
@@ -302,7 +336,7 @@ static enum postbody_rc render(struct postbody *pb, const char *json,
 		return buf_failed(&pb->one) ? POSTBODY_NOMEM : POSTBODY_OK;
 	}
 	root = cJSON_ParseWithLength(json, len);
-	if (root == NULL && looks_like_object(json, len))
+	if (root == NULL && balanced_object(json, len))
 		return POSTBODY_NOMEM; /* our own readings parse: out of memory
 		                        * is the likely cause, so retry later
 		                        * rather than dead-letter real data */
