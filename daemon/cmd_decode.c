@@ -655,27 +655,14 @@ static void decode_held(struct decode *d)
 }
 
 /* Decode every input; the exit status. */
-/* Sum of the regular files' sizes, for the progress line (0: unknown). */
-static uint64_t input_bytes(int nfiles, char **files)
-{
-	uint64_t total = 0;
-	struct stat sb;
-	int i;
-
-	for (i = 0; i < nfiles; i++)
-		if (strcmp(files[i], "-") != 0 && stat(files[i], &sb) == 0 &&
-		    S_ISREG(sb.st_mode))
-			total += (uint64_t)sb.st_size;
-	return total;
-}
-
 static int decode_run(struct decode *d, int nfiles, char **files)
 {
 	int i;
 
 	if (decode_start(d) < 0)
 		return CLI_EXIT_USAGE;
-	progress_start(&d->pg, "decode", "bytes", input_bytes(nfiles, files));
+	progress_start(&d->pg, "decode", "bytes",
+	               progress_file_bytes(nfiles, files));
 	if (isatty(STDOUT_FILENO))
 		d->pg.on = false; /* never mixed with readings on a terminal */
 	if (nfiles == 0)

@@ -443,26 +443,14 @@ static void summary(const struct replay *rp)
 		         "recognised)");
 }
 
-/* Sum of the files' sizes, for the progress line (0 if unknown). */
-static uint64_t total_bytes(int nfiles, char **files)
-{
-	uint64_t total = 0;
-	struct stat sb;
-	int i;
-
-	for (i = 0; i < nfiles; i++)
-		if (stat(files[i], &sb) == 0 && S_ISREG(sb.st_mode))
-			total += (uint64_t)sb.st_size;
-	return total;
-}
-
 static int replay_all(struct replay *rp, int nfiles, char **files)
 {
 	int i, rc = CLI_EXIT_OK;
 
 	if (open_target(rp) != 0)
 		return CLI_EXIT_USAGE;
-	progress_start(&rp->pg, "replay", "bytes", total_bytes(nfiles, files));
+	progress_start(&rp->pg, "replay", "bytes",
+	               progress_file_bytes(nfiles, files));
 	for (i = 0; i < nfiles && !rp->full; i++) {
 		if (replay_file(rp, files[i]) != 0)
 			rc = CLI_EXIT_USAGE;

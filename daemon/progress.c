@@ -5,6 +5,7 @@
 
 #include <errno.h>
 #include <stdio.h>
+#include <sys/stat.h>
 #include <stdlib.h>
 #include <string.h>
 #include <time.h>
@@ -164,4 +165,17 @@ void progress_end(struct progress *p)
 {
 	progress_clear(p);
 	p->on = false;
+}
+
+uint64_t progress_file_bytes(int nfiles, char *const *files)
+{
+	uint64_t total = 0;
+	struct stat sb;
+	int i;
+
+	for (i = 0; i < nfiles; i++)
+		if (strcmp(files[i], "-") != 0 && stat(files[i], &sb) == 0 &&
+		    S_ISREG(sb.st_mode))
+			total += (uint64_t)sb.st_size;
+	return total;
 }

@@ -59,6 +59,10 @@ void progress_update(struct progress *p, uint64_t done, uint64_t items);
 /* Erase the line if shown (before writing a message). */
 void progress_clear(struct progress *p);
 
+/* Sum of the sizes of the regular files named (0 when unknown; "-" is
+ * stdin), a total for progress_start. */
+uint64_t progress_file_bytes(int nfiles, char *const *files);
+
 /* Erase the line; the display is off afterwards. */
 void progress_end(struct progress *p);
 
