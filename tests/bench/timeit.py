@@ -54,9 +54,12 @@ def main():
             if pid:
                 break
             # count only after exec (the pre-exec image is this Python)
-            if exe is None or os.path.realpath(
-                    "/proc/%d/exe" % p.pid) == exe:
-                hwm = max(hwm, vmhwm_kib(p.pid))
+            try:  # the child may exit between wait4 and these reads
+                if exe is None or os.path.realpath(
+                        "/proc/%d/exe" % p.pid) == exe:
+                    hwm = max(hwm, vmhwm_kib(p.pid))
+            except OSError:
+                pass
             time.sleep(0.002)
         wall = time.perf_counter() - t0
     p.returncode = os.waitstatus_to_exitcode(status)
