@@ -4,7 +4,7 @@
 set -e
 PKGS="build-essential pkg-config libcjson-dev libcurl4-openssl-dev \
 libserialport-dev libcmocka-dev python3 python3-gsw socat openssl clang \
-libclang-rt-14-dev man-db groff-base systemd valgrind clang-format cppcheck"
+libclang-rt-14-dev man-db groff-base systemd valgrind clang-format cppcheck librsvg2-bin"
 missing=""
 for p in $PKGS; do
 	dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" ||
