@@ -312,6 +312,12 @@ static struct proc_lane *lane_get(struct process *p, uint32_t station,
 		else
 			hi = mid;
 	}
+	/* A station not in the config gets a lane only while few exist: a
+	 * stream of made-up station numbers must not grow memory without
+	 * bound (its readings then pass without QC and derived values). */
+	if (p->n_lanes >= PROC_UNKNOWN_LANES_MAX &&
+	    (p->cfg == NULL || config_station(p->cfg, station) == NULL))
+		return NULL;
 	if (p->n_lanes == p->cap) {
 		nl = realloc(p->lane, (p->cap ? 2 * p->cap : 16) * sizeof(*nl));
 		if (nl == NULL)

@@ -57,7 +57,8 @@
 #include "buf.h"
 #include "config.h"
 
-#define PROC_ID_MAX 128 /* reading ids kept for updates, bytes with NUL */
+#define PROC_UNKNOWN_LANES_MAX 64 /* lanes before unknown stations get none */
+#define PROC_ID_MAX            128 /* reading ids kept for updates, bytes with NUL */
 
 struct process;
 
