@@ -368,7 +368,8 @@ def accept_level_actions():
         rc3, code, _ = curl(["-d", "{}", srv.url])
     finally:
         srv.stop()
-    check(rc1 in (52, 56), "accept_reset: curl rc %d" % rc1)
+    # a reset right at accept can reach curl before its connect completes
+    check(rc1 in (7, 52, 56), "accept_reset: curl rc %d" % rc1)
     check(rc2 == 28 and dt < 3, "accept_stall: rc %d in %.1f s" % (rc2, dt))
     check(rc3 == 0 and code == "204", "then normal service")
     check(len(srv.requests) == 1, "only the third connection sent a "
