@@ -65,6 +65,10 @@ void cli_print_errors(struct cfg_errors *errs);
  * help.  Returns CLI_EXIT_USAGE. */
 int cli_bad_option(const char *cmd, int c, char **argv);
 
+/* Does the file name end in .sbd or .bin (a message file: `whole`
+ * framing by default)?  Case-insensitive. */
+bool cli_is_message_file(const char *name);
+
 /* Parse a Unix-seconds integer or an RFC 3339 time.  0, or -1. */
 int cli_parse_time(const char *s, int64_t *out)
     __attribute__((warn_unused_result));

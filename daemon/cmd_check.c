@@ -10,6 +10,7 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
+#include <strings.h>
 
 #include "cli.h"
 #include "emit.h"
@@ -196,4 +197,12 @@ int cmd_check(int argc, char **argv)
 	       cfg->n_outputs, plural(cfg->n_outputs, "output", "outputs"));
 	config_free(cfg);
 	return CLI_EXIT_OK;
+}
+
+bool cli_is_message_file(const char *name)
+{
+	size_t n = strlen(name);
+
+	return n > 4 && (strcasecmp(name + n - 4, ".sbd") == 0 ||
+	                 strcasecmp(name + n - 4, ".bin") == 0);
 }

@@ -500,15 +500,6 @@ static int decode_stream(struct decode *d, struct decode_input *in)
 	return 0;
 }
 
-/* Does the file name end in .sbd or .bin (a message file)? */
-static bool is_message_file(const char *name)
-{
-	size_t n = strlen(name);
-
-	return n > 4 && (strcasecmp(name + n - 4, ".sbd") == 0 ||
-	                 strcasecmp(name + n - 4, ".bin") == 0);
-}
-
 /* Open one input, set its framing and received time. */
 static int decode_open(struct decode *d, struct decode_input *in,
                        const char *path)
@@ -530,7 +521,7 @@ static int decode_open(struct decode *d, struct decode_input *in,
 		in->received_s = d->o.received_s;
 	if (d->o.has_framing)
 		kind = d->o.framing;
-	else if (!is_stdin && is_message_file(path))
+	else if (!is_stdin && cli_is_message_file(path))
 		kind = TP_FRAMING_WHOLE;
 	if (tp_frame_init(&in->fr, kind, d->o.fixed_n, d->frame,
 	                  sizeof(d->frame)) != TP_OK) {

@@ -293,14 +293,6 @@ static void replay_chunk(struct replay *rp, size_t n, int64_t mtime)
 	}
 }
 
-static bool is_message_file(const char *name)
-{
-	size_t n = strlen(name);
-
-	return n > 4 && (strcasecmp(name + n - 4, ".sbd") == 0 ||
-	                 strcasecmp(name + n - 4, ".bin") == 0);
-}
-
 static int replay_file(struct replay *rp, const char *path)
 {
 	enum tp_framing kind = TP_FRAMING_COBS;
@@ -316,7 +308,7 @@ static int replay_file(struct replay *rp, const char *path)
 	}
 	if (rp->has_framing)
 		kind = rp->framing;
-	else if (is_message_file(path))
+	else if (cli_is_message_file(path))
 		kind = TP_FRAMING_WHOLE;
 	rp->file = path;
 	(void)tp_frame_init(&rp->fr, kind, rp->fixed_n, rp->frame,
