@@ -382,18 +382,6 @@ static void decode_records(struct decode *d, const struct decode_input *in)
 	}
 }
 
-/* Name of the check a layout uses, for messages. */
-static const char *check_name(const struct tp_layout *l)
-{
-	if (l->check.kind == TP_CHECK_SUM8)
-		return "sum8";
-	if (l->check.kind == TP_CHECK_XOR8)
-		return "xor8";
-	if (l->check.crc.p.name != NULL)
-		return l->check.crc.p.name;
-	return "CRC";
-}
-
 /* A rejected frame: count it; with -v say where and why. */
 static void decode_reject(struct decode *d, const struct decode_input *in,
                           uint64_t *count, const char *fmt, ...)
@@ -439,7 +427,7 @@ static void decode_frame(struct decode *d, const struct decode_input *in)
 	st = tp_decode_validated(l, p, len, &d->pk); /* config validated l */
 	if (st == TP_ERR_CHECK) {
 		decode_reject(d, in, &d->bad_check, "bad check (%s)",
-		              check_name(l));
+		              tp_check_name(l));
 	} else if (st != TP_OK) {
 		decode_reject(d, in, &d->undecodable, "undecodable as %s: %s",
 		              l->name, tp_strerror(st));

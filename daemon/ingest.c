@@ -136,18 +136,6 @@ const struct ingest_stats *ingest_stats(const struct ingest *ing)
 	return &ing->st;
 }
 
-/* Name of the check a layout uses, for messages. */
-static const char *check_name(const struct tp_layout *l)
-{
-	if (l->check.kind == TP_CHECK_SUM8)
-		return "sum8";
-	if (l->check.kind == TP_CHECK_XOR8)
-		return "xor8";
-	if (l->check.crc.p.name != NULL)
-		return l->check.crc.p.name;
-	return "CRC";
-}
-
 /* The station as text: the config's name, else the number (logged once
  * per number, at most INGEST_MAX_WARNED numbers). */
 static const char *station_text(struct ingest *ing, const char *input,
@@ -406,7 +394,7 @@ enum ingest_rc ingest_packet(struct ingest *ing, const struct ingest_src *src,
 		snprintf(res->reason, sizeof(res->reason),
 		         "bad check (%s) as "
 		         "%s",
-		         check_name(l), l->name);
+		         tp_check_name(l), l->name);
 		return INGEST_REJECTED;
 	}
 	if (st != TP_OK) {

@@ -1177,3 +1177,14 @@ enum tp_status tp_encode_packet(const struct tp_layout *l,
 		*out_len = len;
 	return st;
 }
+
+const char *tp_check_name(const struct tp_layout *l)
+{
+	if (l->check.kind == TP_CHECK_SUM8)
+		return "sum8";
+	if (l->check.kind == TP_CHECK_XOR8)
+		return "xor8";
+	if (l->check.crc.p.name != NULL)
+		return l->check.crc.p.name;
+	return "CRC";
+}

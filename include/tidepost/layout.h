@@ -252,6 +252,10 @@ bool tp_layout_accepts(const struct tp_layout *l, const uint8_t *p, size_t len);
 int tp_layout_select(const struct tp_layout *const *ls, size_t n,
                      const uint8_t *p, size_t len);
 
+/* Name of the layout's check for messages: the catalogue name, "sum8",
+ * "xor8", or "CRC" for one given by parameters (never NULL). */
+const char *tp_check_name(const struct tp_layout *l);
+
 /* Verify the check value (TP_OK if the layout has none). */
 enum tp_status tp_check_verify(const struct tp_layout *l, const uint8_t *p,
                                size_t len);
