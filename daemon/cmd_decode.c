@@ -255,27 +255,39 @@ static enum tp_status decode_put(struct decode *d,
                                  const struct emit_reading *er,
                                  const struct emit_sci *sc);
 
-/* Append the held reading x of station text `station` as one line. */
-static enum tp_status decode_put_held(struct decode *d, const char *station,
-                                      const struct proc_held *x)
+/* Append one reading as a line: packet pk, reading rd, its derived
+ * values (plan, NULL: none) and test results. */
+static enum tp_status
+decode_put_parts(struct decode *d, const char *station,
+                 const struct tp_packet *pk, const struct tp_reading *rd,
+                 int64_t received_s, const struct tp_derive_plan *plan,
+                 const struct proc_test *test, size_t n_tests)
 {
 	struct emit_reading er;
 	struct emit_sci sc;
 
 	memset(&sc, 0, sizeof(sc));
 	er.station = station;
-	er.packet = &x->pk;
-	er.reading = &x->rd;
-	er.received_s = x->received_s;
-	if (x->plan != NULL) {
-		sc.derived = x->plan->out;
-		sc.n_derived = x->plan->n_out;
+	er.packet = pk;
+	er.reading = rd;
+	er.received_s = received_s;
+	if (plan != NULL) {
+		sc.derived = plan->out;
+		sc.n_derived = plan->n_out;
 	}
 	if (d->o.qc_tests) {
-		sc.tests = x->test;
-		sc.n_tests = x->n_tests;
+		sc.tests = test;
+		sc.n_tests = n_tests;
 	}
 	return decode_put(d, &er, &sc);
+}
+
+/* Append the held reading x of station text `station` as one line. */
+static enum tp_status decode_put_held(struct decode *d, const char *station,
+                                      const struct proc_held *x)
+{
+	return decode_put_parts(d, station, &x->pk, &x->rd, x->received_s,
+	                        x->plan, x->test, x->n_tests);
 }
 
 /*
@@ -290,7 +302,6 @@ static enum tp_status decode_science(struct decode *d,
 {
 	uint32_t number = d->pk.has_station ? d->pk.station : 0;
 	struct proc_held *x = NULL;
-	struct proc_held now;
 	enum tp_status st = TP_OK;
 
 	buf_reset(&d->id);
@@ -299,16 +310,10 @@ static enum tp_status decode_science(struct decode *d,
 	                    buf_str(&d->id), &d->pout) == 0 &&
 	    d->pout.spike) /* else nothing to wait for: file order */
 		x = proc_hold_get(d->hold, number, d->pk.layout);
-	if (x == NULL) {
-		now.pk = d->pk;
-		now.rd = d->rd;
-		now.received_s = er->received_s;
-		now.plan = d->pout.plan;
-		now.n_tests = d->pout.n_tests;
-		memcpy(now.test, d->pout.test,
-		       d->pout.n_tests * sizeof(now.test[0]));
-		return decode_put_held(d, er->station, &now);
-	}
+	if (x == NULL)
+		return decode_put_parts(d, er->station, &d->pk, &d->rd,
+		                        er->received_s, d->pout.plan,
+		                        d->pout.test, d->pout.n_tests);
 	proc_hold_apply(x, &d->pout);
 	if (x->full)
 		st = decode_put_held(d, er->station, x);

@@ -183,15 +183,19 @@ static inline bool near_round(double v, int d, uint64_t *q)
 	return true;
 }
 
-/* emit_fixed_chars (see emit.h).  The digits go to tmp first and are
- * copied out in fixed-size blocks (hence EMIT_FIXED_MAX of room). */
+/* emit_fixed_chars (see emit.h).  The digits are stored straight into
+ * out, never read back: reading back digits just stored in pieces stalls
+ * the CPU (a failed store-to-load forward), which made this the hottest
+ * function of decode. */
 static inline size_t fixed_chars(char *out, double v, int d)
 {
 	static const double lim[] = {1e18, 1e17, 1e16, 1e15, 1e14,
 	                             1e13, 1e12, 1e11, 1e10, 1e9};
-	char tmp[48], *s, *p = out;
+	static const uint32_t p10[] = {1,         10,        100,     1000,
+	                               10000,     100000,    1000000, 10000000,
+	                               100000000, 1000000000};
+	char *p = out;
 	uint64_t q;
-	size_t ip;
 
 	if (d < 0 || d > EMIT_FAST_DECIMALS || !(fabs(v) < lim[d]))
 		return 0;
@@ -199,16 +203,12 @@ static inline size_t fixed_chars(char *out, double v, int d)
 		return 0;
 	*p = '-'; /* kept only for a value not rounding to 0 (emit.h) */
 	p += q != 0 && signbit(v);
-	s = digits_back(tmp + 24, q, d + 1);
-	ip = (size_t)(tmp + 24 - s) - (size_t)d;
-	memcpy(p, s, 24);
-	p += ip;
-	if (d > 0) {
-		*p = '.';
-		memcpy(p + 1, s + ip, 16);
-		p += 1 + d;
-	}
-	return (size_t)(p - out);
+	if (d == 0)
+		return (size_t)(put_u64(p, q) - out);
+	p = put_u64(p, q / p10[d]);
+	*p = '.';
+	digits_back(p + 1 + d, q % p10[d], d);
+	return (size_t)(p + 1 + d - out);
 }
 
 size_t emit_fixed_chars(char *out, double v, int decimals)
@@ -1029,6 +1029,9 @@ static const char *piece(const struct emit_pcache *pc, int i, size_t *len)
 	return pc->text.data + pc->cut[i];
 }
 
+static struct emit_sk *sk_new(void);
+static void sk_free(struct emit_sk *sk);
+
 int emit_plans_init(struct emit_plans *ps, const struct tp_layout *const *ls,
                     size_t n)
 {
@@ -1037,7 +1040,8 @@ int emit_plans_init(struct emit_plans *ps, const struct tp_layout *const *ls,
 	memset(ps, 0, sizeof(*ps));
 	ps->plan = calloc(n ? n : 1, sizeof(*ps->plan));
 	ps->pc = pcache_new();
-	if (ps->plan == NULL || ps->pc == NULL)
+	ps->sk = sk_new();
+	if (ps->plan == NULL || ps->pc == NULL || ps->sk == NULL)
 		goto out_free;
 	for (i = 0; i < n; i++) {
 		ps->n = i + 1;
@@ -1063,8 +1067,10 @@ void emit_plans_free(struct emit_plans *ps)
 	}
 	free(ps->plan);
 	pcache_free(ps->pc);
+	sk_free(ps->sk);
 	ps->plan = NULL;
 	ps->pc = NULL;
+	ps->sk = NULL;
 	ps->n = 0;
 }
 
@@ -1219,22 +1225,164 @@ static void json_uncached(struct buf *b, const struct emit_plan *pl,
 }
 
 /* plan_members in place at p (room: pl->room): NULL when a number needs
- * the slow form. */
+ * the slow form.  *first as for plan_members. */
 static char *members_at(char *p, const struct emit_plan *pl,
                         const struct emit_reading *er, size_t from, size_t n,
-                        bool flags, bool first)
+                        bool flags, bool *first)
 {
 	const struct emit_col *c;
 	size_t i, skip;
 
 	for (i = from; i < pl->n_cols && pl->cols[i].slot < n; i++) {
 		c = &pl->cols[i];
-		skip = first ? 1 : 0;
+		skip = *first ? 1 : 0;
 		p = member_at(p, pl->text + c->key + skip, c->key_len - skip,
 		              c->form, &er->reading->values[c->slot], flags);
 		if (p == NULL)
 			return NULL;
-		first = false;
+		*first = false;
+	}
+	return p;
+}
+
+/*
+ * Derived-value keys: the `,"name":` texts of one emit_sci's derived list,
+ * escaped once, so its members are written in place like the layout's.
+ * A few lists are kept (one per station and layout in use, usually one);
+ * an entry is keyed by the list's address and checked against the name
+ * pointers (static strings, derive.h), decimals and slots it was made
+ * from, so a list rebuilt at the same address cannot use stale keys.
+ */
+struct sci_was {
+	const char *name;
+	int decimals;
+	size_t slot;
+};
+
+struct emit_scikeys {
+	const struct tp_derived_info *derived; /* NULL: entry unused */
+	size_t n;
+	struct sci_was was[TP_DV_N];
+	size_t key[TP_DV_N], key_len[TP_DV_N];
+	size_t room; /* bytes all members may take in place */
+	uint64_t used;
+	struct buf text;
+};
+
+struct emit_sk {
+	struct emit_scikeys e[EMIT_SCI_KEYS];
+	uint64_t tick;
+};
+
+static struct emit_sk *sk_new(void)
+{
+	struct emit_sk *sk = calloc(1, sizeof(*sk));
+	size_t i;
+
+	for (i = 0; sk != NULL && i < EMIT_SCI_KEYS; i++)
+		buf_init(&sk->e[i].text, 64 * 1024);
+	return sk;
+}
+
+static void sk_free(struct emit_sk *sk)
+{
+	size_t i;
+
+	for (i = 0; sk != NULL && i < EMIT_SCI_KEYS; i++)
+		buf_free(&sk->e[i].text);
+	free(sk);
+}
+
+/* Was entry e made from sc's list as it is now? */
+static bool sk_same(const struct emit_scikeys *e, const struct emit_sci *sc)
+{
+	const struct tp_derived_info *d = sc->derived;
+	size_t j;
+
+	if (e->derived != d || e->n != sc->n_derived)
+		return false;
+	for (j = 0; j < e->n; j++) {
+		if (e->was[j].name != d[j].name ||
+		    e->was[j].decimals != d[j].decimals ||
+		    e->was[j].slot != d[j].slot)
+			return false;
+	}
+	return true;
+}
+
+/* Make e the keys of sc's list; false when out of memory. */
+static bool sk_build(struct emit_scikeys *e, const struct emit_sci *sc)
+{
+	static const char zeros[PLAN_SLACK];
+	const struct tp_derived_info *d = sc->derived;
+	size_t j;
+
+	e->derived = NULL;
+	e->room = 0;
+	buf_reset(&e->text);
+	for (j = 0; j < sc->n_derived && j < TP_DV_N; j++) {
+		e->was[j].name = d[j].name;
+		e->was[j].decimals = d[j].decimals;
+		e->was[j].slot = d[j].slot;
+		e->key[j] = e->text.len;
+		buf_addc(&e->text, ',');
+		emit_json_string(&e->text, d[j].name);
+		buf_addc(&e->text, ':');
+		e->key_len[j] = e->text.len - e->key[j];
+		e->room += e->key_len[j] + 16 + EMIT_FIXED_MAX;
+	}
+	buf_add(&e->text, zeros, PLAN_SLACK); /* so keys copy in blocks */
+	if (buf_failed(&e->text) || j < sc->n_derived)
+		return false;
+	e->derived = d;
+	e->n = sc->n_derived;
+	return true;
+}
+
+/* The keys of sc's derived list, or NULL (none, or out of memory). */
+static const struct emit_scikeys *sk_for(struct emit_sk *sk,
+                                         const struct emit_sci *sc)
+{
+	struct emit_scikeys *e, *old;
+	size_t i;
+
+	if (sk == NULL || sc->derived == NULL || sc->n_derived == 0)
+		return NULL;
+	old = &sk->e[0];
+	for (i = 0; i < EMIT_SCI_KEYS; i++) {
+		e = &sk->e[i];
+		if (sk_same(e, sc)) {
+			e->used = ++sk->tick;
+			return e;
+		}
+		if (e->used < old->used)
+			old = e;
+	}
+	if (!sk_build(old, sc))
+		return NULL;
+	old->used = ++sk->tick;
+	return old;
+}
+
+/* science_members in place at p (room: e->room): NULL when a number needs
+ * the slow form.  *first as for science_members. */
+static char *science_at(char *p, const struct emit_scikeys *e,
+                        const struct emit_reading *er, bool flags, bool *first)
+{
+	const struct tp_value *v;
+	size_t j, skip;
+
+	for (j = 0; e != NULL && j < e->n; j++) {
+		if (e->was[j].slot >= er->reading->n_values)
+			continue;
+		v = &er->reading->values[e->was[j].slot];
+		skip = *first ? 1 : 0;
+		p = member_at(p, e->text.data + e->key[j] + skip,
+		              e->key_len[j] - skip, e->was[j].decimals, v,
+		              flags);
+		if (p == NULL)
+			return NULL;
+		*first = false;
 	}
 	return p;
 }
@@ -1249,13 +1397,16 @@ static char *put_piece(char *p, const struct emit_pcache *pc, int i)
 }
 
 /* json_cached in one buf_room, when it fits and every number takes the
- * fast form; false (nothing written) otherwise. */
+ * fast form; false (nothing written) otherwise.  e: the keys of the
+ * derived values (NULL: none). */
 static bool json_in_place(struct buf *b, const struct emit_plan *pl,
                           struct emit_pcache *pc, const struct emit_reading *er,
-                          size_t ns)
+                          size_t ns, const struct emit_scikeys *e)
 {
+	size_t sroom = e != NULL ? e->room : 0;
 	char *p = buf_room(b, pc->text.len + 4 * 16 + 20 + EMIT_TIME_LEN +
-	                          2 * pl->room + 3);
+	                          2 * (pl->room + sroom) + 3);
+	bool first = !pc->any_head;
 
 	if (p == NULL)
 		return false;
@@ -1264,11 +1415,15 @@ static bool json_in_place(struct buf *b, const struct emit_plan *pl,
 	p = put_piece(p, pc, 1);
 	p = put_time_cached(p, er->reading->time_s, &pc->day, pc->date);
 	p = put_piece(p, pc, 2);
-	p = members_at(p, pl, er, pl->n_head_cols, ns, false, !pc->any_head);
+	p = members_at(p, pl, er, pl->n_head_cols, ns, false, &first);
+	if (p != NULL)
+		p = science_at(p, e, er, false, &first);
 	if (p == NULL)
 		return false;
 	p = put_piece(p, pc, 3);
-	p = members_at(p, pl, er, pl->n_head_cols, ns, true, !pc->any_head);
+	first = !pc->any_head;
+	p = members_at(p, pl, er, pl->n_head_cols, ns, true, &first);
+	p = science_at(p, e, er, true, &first); /* flags: always fast */
 	buf_commit(b, put_mem(p, LIT("}}\n")));
 	return true;
 }
@@ -1284,6 +1439,7 @@ void emit_json_planned_sci(struct buf *b, const struct emit_plans *ps,
                            const struct emit_sci *sc)
 {
 	const struct emit_plan *pl = plan_for(ps, er->packet->layout);
+	const struct emit_scikeys *e;
 	size_t ns;
 
 	if (pl == NULL) {
@@ -1296,10 +1452,21 @@ void emit_json_planned_sci(struct buf *b, const struct emit_plans *ps,
 		if (pcache_start(ps->pc, er, ns))
 			pcache_json(ps->pc, pl, er, ns);
 	}
-	if (ps->pc == NULL || ps->pc->layout != pl->layout)
+	if (ps->pc == NULL || ps->pc->layout != pl->layout) {
 		json_uncached(b, pl, er, ns, sc);
-	else if (sc != NULL || !json_in_place(b, pl, ps->pc, er, ns))
-		json_cached(b, pl, ps->pc, er, ns, sc); /* derived: cached */
+		return;
+	}
+	if (sc == NULL || sc->n_derived == 0) {
+		if (sc == NULL || sc->tests == NULL) {
+			if (json_in_place(b, pl, ps->pc, er, ns, NULL))
+				return;
+		}
+	} else if (sc->tests == NULL) {
+		e = sk_for(ps->sk, sc);
+		if (e != NULL && json_in_place(b, pl, ps->pc, er, ns, e))
+			return;
+	}
+	json_cached(b, pl, ps->pc, er, ns, sc);
 }
 
 /* Quote the cell written since `start` if it needs it (RFC 4180). */

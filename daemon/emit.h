@@ -153,11 +153,15 @@ struct emit_plan {
 };
 
 struct emit_pcache; /* private to emit.c */
+struct emit_sk;
+
+#define EMIT_SCI_KEYS 4 /* derived-value lists whose keys are kept */
 
 struct emit_plans {
 	struct emit_plan *plan;
 	size_t n;
 	struct emit_pcache *pc; /* what the last packet's records share */
+	struct emit_sk *sk;     /* keys of the last derived lists used */
 };
 
 /* Plans for n layouts.  Returns 0, or -1 (out of memory, errno set). */

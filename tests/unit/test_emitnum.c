@@ -485,6 +485,89 @@ static void planned_json_matches(void **state)
 	emit_plans_free(NULL);
 }
 
+/*
+ * Derived values through the plans: emit_json_planned_sci equals
+ * emit_json_sci over many readings, with more derived lists than the
+ * writer keeps keys for (EMIT_SCI_KEYS), names needing escapes, decimals
+ * outside the fast range, slots past the reading's end, and a list
+ * changed in place (same address, other names and decimals), which must
+ * not be written with its old keys.  The names are invented.
+ */
+#define SCI_LISTS (EMIT_SCI_KEYS + 3)
+
+static void sci_lists(struct tp_derived_info (*d)[3], size_t nv)
+{
+	static const char *const names[] = { "salinity", "o\"2",
+		                             "pco2", "omega,ar", "x" };
+	size_t i, j;
+
+	for (i = 0; i < SCI_LISTS; i++) {
+		for (j = 0; j < 3; j++) {
+			d[i][j] = (struct tp_derived_info){ 0 };
+			d[i][j].name = names[(i + j) % N(names)];
+			d[i][j].decimals = (int)((i * 3 + j) % 12); /* 10, 11:
+			                                              slow */
+			d[i][j].slot = nv + j + (i == 2 && j == 2 ? 5 : 0);
+		}
+	}
+}
+
+static void planned_sci_matches(void **state)
+{
+	static const struct tp_layout *const ls[] = { &lay_a, &lay_b };
+	static struct tp_derived_info d[SCI_LISTS][3];
+	struct emit_plans ps;
+	struct emit_reading er;
+	struct emit_sci sc;
+	struct scene s;
+	struct buf want, got;
+	size_t nv, j;
+	int i;
+
+	(void)state;
+	memset(&s, 0, sizeof(s));
+	s.l = &lay_b;
+	s.pk.layout = &lay_b;
+	s.station = "rf2";
+	assert_int_equal(emit_plans_init(&ps, ls, N(ls)), 0);
+	buf_init(&want, 1 << 16);
+	buf_init(&got, 1 << 16);
+	for (i = 0; i < 40000; i++) {
+		scene_step(&s, ls, N(ls));
+		nv = tp_layout_n_values(s.l);
+		sci_lists(d, nv);
+		if (i % 1000 >= 500) /* the same lists, rebuilt differently */
+			for (j = 0; j < 3; j++) {
+				d[i % SCI_LISTS][j].name = "re\tnamed";
+				d[i % SCI_LISTS][j].decimals = (int)j;
+			}
+		memset(&sc, 0, sizeof(sc));
+		sc.derived = d[below(SCI_LISTS)];
+		sc.n_derived = (size_t)below(4);
+		if (s.r.n_values == nv) { /* a full reading carries them */
+			for (j = 0; j < 3; j++) {
+				s.r.values[nv + j] = rand_value(&b_head[0]);
+				if (below(3) == 0)
+					s.r.values[nv + j].v = any_double();
+			}
+			s.r.n_values = nv + 3;
+		}
+		er = scene_reading(&s);
+		buf_reset(&want);
+		buf_reset(&got);
+		buf_adds(&got, "x");
+		emit_json_sci(&want, &er, &sc);
+		emit_json_planned_sci(&got, &ps, &er, &sc);
+		assert_false(buf_failed(&got));
+		if (strcmp(buf_str(&got) + 1, buf_str(&want)) != 0)
+			fail_msg("reading %d:\n planned %s emit_json %s", i,
+			         buf_str(&got) + 1, buf_str(&want));
+	}
+	buf_free(&want);
+	buf_free(&got);
+	emit_plans_free(&ps);
+}
+
 /* Cached CSV rows equal rows written by a fresh table (cold cache). */
 static void cached_csv_matches(void **state)
 {
@@ -743,6 +826,7 @@ int main(void)
 		cmocka_unit_test(fixed_matches_snprintf),
 		cmocka_unit_test(times_match_gmtime),
 		cmocka_unit_test(planned_json_matches),
+		cmocka_unit_test(planned_sci_matches),
 		cmocka_unit_test(cached_csv_matches),
 		cmocka_unit_test(planned_json_caps),
 		cmocka_unit_test(unplanned_layout_falls_back),
