@@ -29,7 +29,9 @@ ALL_CFLAGS  := $(BASE_CFLAGS) $(CFLAGS)
 
 DEPS_PKGS   := libcjson libcurl libserialport
 DEPS_CFLAGS  = $(shell $(PKG_CONFIG) --cflags $(DEPS_PKGS) 2>/dev/null)
-DEPS_LIBS    = $(shell $(PKG_CONFIG) --libs $(DEPS_PKGS) 2>/dev/null || echo -lcjson -lcurl -lserialport)
+# libcurl is not linked: daemon/curlload.c loads it when first used.
+LINK_PKGS   := libcjson libserialport
+DEPS_LIBS    = $(shell $(PKG_CONFIG) --libs $(LINK_PKGS) 2>/dev/null || echo -lcjson -lserialport) -ldl
 CMOCKA_LIBS  = $(shell $(PKG_CONFIG) --libs cmocka 2>/dev/null || echo -lcmocka)
 
 LIB_SRC     := $(sort $(wildcard decoder/*.c))

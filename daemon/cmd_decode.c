@@ -46,15 +46,17 @@
 #include "process.h"
 #include "progress.h"
 
-#define DECODE_READ_BYTES   (64 * 1024)
-#define DECODE_LINE_MAX     (1024 * 1024) /* one output line, at most */
-#define DECODE_OUT_FLUSH    (64 * 1024)   /* write stdout at this much */
-#define DECODE_MAX_WARNED   256           /* unknown stations logged once */
-#define DECODE_OPT_QC_TESTS 512           /* --qc-tests (past CLI_OPT_*) */
+#define DECODE_READ_BYTES     (64 * 1024)
+#define DECODE_LINE_MAX       (1024 * 1024) /* one output line, at most */
+#define DECODE_OUT_FLUSH      (64 * 1024)   /* write stdout at this much */
+#define DECODE_MAX_WARNED     256           /* unknown stations logged once */
+#define DECODE_OPT_QC_TESTS   512           /* --qc-tests (past CLI_OPT_*) */
+#define DECODE_OPT_NO_SCIENCE 513           /* --no-science */
 
 const char cmd_decode_usage[] =
     "usage: tidepost decode [-c CONFIG | -l LAYOUT ...] [--framing F]\n"
-    "                       [--format ndjson|csv] [--received TIME] [-v]\n"
+    "                       [--format ndjson|csv] [--received TIME]\n"
+    "                       [--qc-tests | --no-science] [-v]\n"
     "                       [FILE ... | -]\n"
     "\n"
     "Decode archived packets (message files or captured byte streams)\n"
@@ -72,6 +74,9 @@ const char cmd_decode_usage[] =
     "                        modification time, or now for stdin\n"
     "  --qc-tests            add each QC'd value's per-test QARTOD flags\n"
     "                        (NDJSON \"tests\", CSV <value>_<test>)\n"
+    "  --no-science          only the values the packets carry, flagged by\n"
+    "                        the layout's ranges: no config QC tests and\n"
+    "                        no derived values\n"
     "  -v, --verbose         one line per rejected packet or broken frame\n"
     "  -h, --help            this text\n"
     "\n"
@@ -87,7 +92,8 @@ struct decode_opts {
 	size_t fixed_n;
 	bool has_received;
 	int64_t received_s;
-	bool qc_tests; /* --qc-tests */
+	bool qc_tests;   /* --qc-tests */
+	bool no_science; /* --no-science */
 };
 
 /* One input being read. */
@@ -153,6 +159,18 @@ static int decode_option(struct decode_opts *o, int c, const char *arg)
 }
 
 /* Parse options; returns -1 to go on, else an exit status. */
+/* Options that cannot go together: -1 (fine), or the exit status. */
+static int decode_opts_check(const struct decode_opts *o)
+{
+	if (o->qc_tests && o->no_science) {
+		log_err(
+		    "decode: --qc-tests and --no-science cannot go together "
+		    "(--no-science runs no QC tests)");
+		return CLI_EXIT_USAGE;
+	}
+	return -1;
+}
+
 static int decode_parse(struct decode_opts *o, int argc, char **argv)
 {
 	static const struct option opts[] = {
@@ -162,6 +180,7 @@ static int decode_parse(struct decode_opts *o, int argc, char **argv)
 	    {"format", required_argument, NULL, CLI_OPT_FORMAT},
 	    {"received", required_argument, NULL, CLI_OPT_RECEIVED},
 	    {"qc-tests", no_argument, NULL, DECODE_OPT_QC_TESTS},
+	    {"no-science", no_argument, NULL, DECODE_OPT_NO_SCIENCE},
 	    {"verbose", no_argument, NULL, 'v'},
 	    {"help", no_argument, NULL, 'h'},
 	    {NULL, 0, NULL, 0}};
@@ -171,7 +190,7 @@ static int decode_parse(struct decode_opts *o, int argc, char **argv)
 	for (;;) {
 		c = getopt_long(argc, argv, ":c:l:vh", opts, NULL);
 		if (c == -1)
-			return -1;
+			return decode_opts_check(o);
 		if (c == 'c') {
 			o->src.config = optarg;
 		} else if (c == 'l') {
@@ -181,6 +200,8 @@ static int decode_parse(struct decode_opts *o, int argc, char **argv)
 			o->verbose = true;
 		} else if (c == DECODE_OPT_QC_TESTS) {
 			o->qc_tests = true;
+		} else if (c == DECODE_OPT_NO_SCIENCE) {
+			o->no_science = true;
 		} else if (c == 'h') {
 			fputs(cmd_decode_usage, stdout);
 			return CLI_EXIT_OK;
@@ -332,6 +353,9 @@ static enum tp_status decode_line(struct decode *d, uint32_t k,
 	st = tp_decode_record(&d->pk, k, &d->rd);
 	if (st != TP_OK)
 		return st;
+	if (d->o.no_science)
+		return decode_put_parts(d, er->station, &d->pk, &d->rd,
+		                        er->received_s, NULL, NULL, 0);
 	return decode_science(d, er);
 }
 
@@ -600,7 +624,7 @@ static int decode_start(struct decode *d)
 		return 0;
 	if (emit_csv_init(&d->csv, d->cfg->layout_ptrs, d->cfg->n_layouts) <
 	        0 ||
-	    decode_csv_science(d) < 0) {
+	    (!d->o.no_science && decode_csv_science(d) < 0)) {
 		log_err("decode: csv columns: %s", strerror(errno));
 		return -1;
 	}

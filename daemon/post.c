@@ -20,6 +20,7 @@
 #include <curl/curl.h>
 
 #include "backoff.h"
+#include "curlload.h"
 #include "log.h"
 #include "post.h"
 #include "postbody.h"
@@ -458,10 +459,10 @@ int post_new(const struct cfg_output *o, const struct post_ctx *ctx,
 	p->limit = o->batch > 0 ? o->batch : 500;
 	if (!p->global_init || setup(p, err, errcap) != 0) {
 		if (!p->global_init)
-			snprintf(err, errcap,
-			         "post: %s: curl_global_init"
-			         " failed",
-			         o->name);
+			snprintf(err, errcap, "post: %s: libcurl: %s", o->name,
+			         curlload_error() != NULL
+			             ? curlload_error()
+			             : "curl_global_init failed");
 		post_free(p);
 		return -1;
 	}
