@@ -42,6 +42,8 @@ def cobs_decode(frame):
 def flag(name, v):
     if v is None:
         return 9
+    if name not in RANGES:  # no range in the layout: passes
+        return 1
     lo, hi = RANGES[name]
     return 1 if lo <= v <= hi else 4
 
@@ -50,8 +52,8 @@ def readings(pkt):
     kind, st, seq, t, batt, ltemp, lrh = HEADER.unpack_from(pkt)
     name = STATIONS.get(st, str(st))
     bits = int.from_bytes(pkt[13:40], "big") >> 4
-    head = {"battery": round(batt * 0.001, 3), "logger_temp": ltemp,
-            "logger_rh": lrh}
+    head = {"kind": kind, "battery": round(batt * 0.001, 3),
+            "logger_temp": ltemp, "logger_rh": lrh}
     for k in range(4):
         rec = (bits >> (53 * (3 - k))) & ((1 << 53) - 1)
         ph = rec >> 41

@@ -263,6 +263,42 @@ def csv_columns():
     assert float(row["omega_aragonite"]) == j["values"]["omega_aragonite"]
 
 
+@test
+def no_science_writes_layout_values_only():
+    """--no-science: the layout's values only, with the decoder's range
+    flags (no config QC, no derived values); the same numbers as the full
+    decode; CSV without derived or test columns; --qc-tests with it is a
+    usage error (exit 2)."""
+    cfg = os.path.join(DEMO, "config.json")
+    base = ["decode", "-c", cfg, "--framing", "cobs", FX.archive]
+    rc, out, err = run(base + ["--no-science"])
+    assert rc == 0, err
+    raw = [json.loads(ln) for ln in out.decode().splitlines()]
+    assert len(raw) == len(FX.plain)
+    changed = 0
+    for a, b in zip(raw, FX.plain):
+        assert a["id"] == b["id"]
+        assert list(a["values"]) == LAYOUT_VALUES, list(a["values"])
+        assert list(a["flags"]) == LAYOUT_VALUES
+        for n in LAYOUT_VALUES:
+            if b["flags"][n] != 9:  # config QC may null a failed value
+                assert a["values"][n] == b["values"][n], (a["id"], n)
+            assert a["flags"][n] in (1, 2, 3, 4, 9)
+            changed += a["flags"][n] != b["flags"][n]
+    # the config's QC tests flag some readings the layout's ranges pass
+    assert changed > 0
+    rc, out, err = run(base + ["--no-science", "--format", "csv"])
+    assert rc == 0, err
+    head = out.decode().splitlines()[0].split(",")
+    want = ["id", "station", "time", "seq"]
+    for n in LAYOUT_VALUES:
+        want += [n, n + "_flag"]
+    assert head == want, head
+    rc, out, err = run(base + ["--no-science", "--qc-tests"])
+    assert rc == 2 and out == b"", (rc, err)
+    assert "--qc-tests and --no-science" in err, err
+
+
 def main():
     global FX
     passed = failed = 0
