@@ -5,6 +5,7 @@
 #include "process.h"
 
 #include <math.h>
+#include <stddef.h>
 #include <stdlib.h>
 #include <string.h>
 
@@ -582,16 +583,38 @@ void proc_hold_apply(struct proc_held *x, const struct proc_out *out)
 	}
 }
 
+/* The used part of a packet and of a reading (what lies past their
+ * header fields and n_values is never read), not the whole 5 KB. */
+static void copy_packet(struct tp_packet *dst, const struct tp_packet *src)
+{
+	size_t n = src->layout != NULL ? src->layout->n_fields : TP_MAX_FIELDS;
+
+	memcpy(dst, src, offsetof(struct tp_packet, header));
+	memcpy(dst->header, src->header,
+	       (n < TP_MAX_FIELDS ? n : TP_MAX_FIELDS) *
+	           sizeof(dst->header[0]));
+}
+
+static void copy_reading(struct tp_reading *dst, const struct tp_reading *src)
+{
+	size_t n = src->n_values;
+
+	memcpy(dst, src, offsetof(struct tp_reading, values));
+	memcpy(dst->values, src->values,
+	       (n < TP_MAX_VALUES ? n : TP_MAX_VALUES) *
+	           sizeof(dst->values[0]));
+}
+
 void proc_hold_put(struct proc_held *x, const struct tp_packet *pk,
                    const struct tp_reading *rd, int64_t received_s,
                    uint64_t ref, const struct proc_out *out)
 {
 	x->full = true;
 	x->ref = ref;
-	x->pk = *pk;
+	copy_packet(&x->pk, pk);
 	x->pk.data = NULL;
 	x->pk.len = 0;
-	x->rd = *rd;
+	copy_reading(&x->rd, rd);
 	x->received_s = received_s;
 	x->plan = out->plan;
 	x->n_tests = out->n_tests;

@@ -337,6 +337,9 @@ static enum tp_status check_names(const struct tp_layout *l,
 	return TP_OK;
 }
 
+static struct tp_value from_depth(const struct tp_derive_plan *p,
+                                  struct tp_value d);
+
 static void plan_empty(struct tp_derive_plan *p, size_t n_slots)
 {
 	int i;
@@ -346,6 +349,7 @@ static void plan_empty(struct tp_derive_plan *p, size_t n_slots)
 	p->cond_unit = TP_COND_MS_CM;
 	p->o2_unit = TP_O2_UMOL_KG;
 	p->pressure = TP_PRES_ZERO;
+	p->station_p = (struct tp_value){.v = 0.0, .flag = TP_FLAG_PASS};
 	for (i = 0; i < TP_DIN_N; i++)
 		p->in[i] = -1;
 	for (i = 0; i < TP_DV_N; i++)
@@ -374,6 +378,10 @@ enum tp_status tp_derive_bind(const struct tp_layout *l,
 	if (s == TP_OK) {
 		plan->n_slots = tp_layout_n_values(l);
 		plan->pressure = resolve_pressure(plan);
+		if (plan->pressure == TP_PRES_STATION_DEPTH)
+			plan->station_p = from_depth(
+			    plan, (struct tp_value){.v = plan->cfg.depth_m,
+			                            .flag = TP_FLAG_PASS});
 		choose(plan);
 		s = check_names(l, plan, pb);
 	}
@@ -462,30 +470,33 @@ static void put(const struct tp_derive_plan *p, struct tp_reading *r,
 		r->values[p->out[p->pos[d]].slot] = x;
 }
 
-static struct tp_value pressure(const struct tp_derive_plan *p,
-                                const struct tp_reading *r)
+/* Sea pressure at depth d (its flag carried on). */
+static struct tp_value from_depth(const struct tp_derive_plan *p,
+                                  struct tp_value d)
 {
-	struct tp_value d;
 	double dbar = NAN;
 	bool valid = false;
 	enum tp_status s;
 
-	switch (p->pressure) {
-	case TP_PRES_FIELD:
-		return slot_value(p, r, TP_DIN_PRESSURE);
-	case TP_PRES_DEPTH_FIELD:
-		d = slot_value(p, r, TP_DIN_DEPTH);
-		break;
-	case TP_PRES_STATION_DEPTH:
-		d = mk(p->cfg.depth_m, TP_FLAG_PASS);
-		break;
-	default:
-		return mk(0.0, TP_FLAG_PASS);
-	}
 	if (missing(d))
 		return mk(NAN, TP_FLAG_MISSING);
 	s = tp_p_from_depth(d.v, p->cfg.lat_deg, &dbar, &valid);
 	return result(s, dbar, valid, d.flag);
+}
+
+static struct tp_value pressure(const struct tp_derive_plan *p,
+                                const struct tp_reading *r)
+{
+	switch (p->pressure) {
+	case TP_PRES_FIELD:
+		return slot_value(p, r, TP_DIN_PRESSURE);
+	case TP_PRES_DEPTH_FIELD:
+		return from_depth(p, slot_value(p, r, TP_DIN_DEPTH));
+	case TP_PRES_STATION_DEPTH:
+		return p->station_p; /* worked out by tp_derive_bind */
+	default:
+		return mk(0.0, TP_FLAG_PASS);
+	}
 }
 
 static void salinity(const struct tp_derive_plan *p, struct tp_reading *r,

@@ -178,6 +178,8 @@ struct tp_derive_plan {
 	enum tp_cond_unit cond_unit;
 	enum tp_o2_unit o2_unit;
 	enum tp_pres_source pressure; /* resolved (never AUTO) */
+	struct tp_value station_p;    /* TP_PRES_STATION_DEPTH: the pressure
+	                                 at depth_m, worked out once */
 	int pos[TP_DV_N];             /* index into out[], or -1 */
 	size_t n_out;
 	struct tp_derived_info out[TP_DV_N];
