@@ -122,6 +122,7 @@ void postbody_begin(struct postbody *pb)
 	buf_reset(&pb->quant);
 	pb->n = 0;
 	pb->n_names = 0;
+	pb->hint = 0;
 	pb->finished = false;
 	if (pb->format == CFG_FMT_BATCH)
 		buf_adds(&pb->body, BATCH_HEAD);
@@ -184,13 +185,23 @@ static int transform(struct postbody *pb, cJSON *root)
 	return 0;
 }
 
-static bool have_name(const struct postbody *pb, const char *name)
+/* Is name among pb->names?  Readings of a batch name their values in
+ * the same order, so the name after the last one found is tried first:
+ * one comparison per name instead of a search. */
+static bool have_name(struct postbody *pb, const char *name)
 {
 	size_t i;
 
-	for (i = 0; i < pb->n_names; i++)
-		if (strcmp(pb->names[i], name) == 0)
+	if (pb->hint < pb->n_names && strcmp(pb->names[pb->hint], name) == 0) {
+		pb->hint++;
+		return true;
+	}
+	for (i = 0; i < pb->n_names; i++) {
+		if (strcmp(pb->names[i], name) == 0) {
+			pb->hint = i + 1;
 			return true;
+		}
+	}
 	return false;
 }
 
@@ -199,12 +210,15 @@ static void add_quantity(struct postbody *pb, const char *name)
 {
 	const char *sent = renamed(pb->o, name), *unit, *std;
 
-	if (strlen(sent) > POSTBODY_NAME_MAX || have_name(pb, sent) ||
-	    pb->n_names == POSTBODY_NAMES_MAX ||
-	    !postbody_quantity(pb->cfg, name, &unit, &std) ||
+	if (have_name(pb, sent) || strlen(sent) > POSTBODY_NAME_MAX ||
+	    pb->n_names == POSTBODY_NAMES_MAX)
+		return;
+	/* remembered with or without a quantity, so it is looked up once */
+	memcpy(pb->names[pb->n_names++], sent, strlen(sent) + 1);
+	pb->hint = pb->n_names;
+	if (!postbody_quantity(pb->cfg, name, &unit, &std) ||
 	    (unit == NULL && std == NULL))
 		return;
-	memcpy(pb->names[pb->n_names++], sent, strlen(sent) + 1);
 	if (pb->quant.len > 0)
 		buf_addc(&pb->quant, ',');
 	emit_json_string(&pb->quant, sent);
@@ -232,6 +246,29 @@ static void add_quantities(struct postbody *pb, const cJSON *values)
 	}
 }
 
+/* Is the k bytes at s the name have_name would try first (and the
+ * output renames nothing)?  Then it is known, and the hint moves on:
+ * most names of a batch are found here, without copying them. */
+static bool next_name(struct postbody *pb, const char *s, size_t k)
+{
+	const char *n;
+
+	if (pb->o->n_rename > 0 || pb->hint >= pb->n_names)
+		return false;
+	n = pb->names[pb->hint];
+	if (memcmp(n, s, k) != 0 || n[k] != '\0')
+		return false;
+	pb->hint++;
+	return true;
+}
+
+/* A character of a JSON number or of null (scan_values). */
+static inline bool in_number(char c)
+{
+	return (c >= '0' && c <= '9') || c == '-' || c == '+' || c == '.' ||
+	       c == 'e' || c == 'E' || c == 'n' || c == 'u' || c == 'l';
+}
+
 /*
  * The fast path for a reading tidepost wrote itself: the keys of its
  * "values" object, whose members are plain names (no escapes) holding
@@ -257,12 +294,13 @@ static bool scan_values(struct postbody *pb, const char *json, size_t len)
 				return false;
 		if (p + k + 1 >= end || p[k + 1] != ':' || k == 0)
 			return false;
-		memcpy(name, p, k);
-		name[k] = '\0';
-		add_quantity(pb, name);
+		if (!next_name(pb, p, k)) {
+			memcpy(name, p, k);
+			name[k] = '\0';
+			add_quantity(pb, name);
+		}
 		q = p + k + 2;
-		while (q < end && strchr("0123456789+-.eEnul", *q) != NULL &&
-		       *q != '\0')
+		while (q < end && in_number(*q))
 			q++;
 		if (q >= end || (*q != ',' && *q != '}'))
 			return false;

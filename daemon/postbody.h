@@ -36,7 +36,7 @@
 #include "buf.h"
 #include "config.h"
 
-#define POSTBODY_NAMES_MAX 256 /* distinct names with quantities */
+#define POSTBODY_NAMES_MAX 256 /* distinct value names per body */
 #define POSTBODY_NAME_MAX  127
 
 struct cJSON;
@@ -53,7 +53,8 @@ struct postbody {
 	struct buf quant; /* members of "quantities" */
 	size_t n;         /* readings in body */
 	size_t n_names;
-	char (*names)[POSTBODY_NAME_MAX + 1]; /* names in quant */
+	char (*names)[POSTBODY_NAME_MAX + 1]; /* names seen (sent form) */
+	size_t hint; /* where the next name is likely found in names */
 	bool finished;
 };
 

@@ -36,6 +36,7 @@
 #define REC_MAX        4096u /* HDR + RING_PAYLOAD_MAX */
 #define STAGE_MAX      65536u
 #define RBUF_BYTES     65536u
+#define RING_JUMPS     4 /* places remembered for walk() */
 #define SIZE_MAX_BYTES (1ull << 40)
 #define SLOT_MAGIC     0x48525054u /* "TPRH" */
 #define REC_MAGIC      0x43525054u /* "TPRC" */
@@ -108,7 +109,9 @@ struct ring {
 	int owed_sync; /* mutation switch only */
 	uint64_t refused, lost, recovery_us;
 	int failed;
-	struct pos rhint; /* ring_read: after the last read */
+	struct pos rhint;            /* ring_read: after the last read */
+	struct pos jump[RING_JUMPS]; /* places readers reached (walk) */
+	unsigned jump_next;
 	unsigned char *rbuf;
 	uint64_t rb_off;
 	size_t rb_len;
@@ -411,11 +414,41 @@ static int scan(struct ring *r, struct pos *p, uint64_t *n)
 
 /* Walk from p (a valid place before the head) to the first record with
  * seq >= target, or to the head.  -1: I/O error or EBADMSG. */
+/*
+ * walk() would step over every record from the tail when an output's
+ * acknowledgement frees a batch (hdr_tail), reading the batch a second
+ * time through the read buffer.  Readers remember the places they reach
+ * (record boundaries on the chain from tail to head), and walk starts
+ * from the furthest one not past its target.  A place is usable while
+ * its seq lies between the tail and the head: records there are never
+ * rewritten, and one from a freed and reused part of the ring has a seq
+ * below the tail.
+ */
+static void jump_note(struct ring *r, const struct pos *p)
+{
+	r->jump[r->jump_next] = *p;
+	r->jump_next = (r->jump_next + 1) % RING_JUMPS;
+}
+
+static void jump_ahead(const struct ring *r, struct pos *p, uint64_t target)
+{
+	const struct pos *j;
+	int i;
+
+	for (i = 0; i < RING_JUMPS; i++) {
+		j = &r->jump[i];
+		if (j->seq > p->seq && j->seq <= target &&
+		    j->seq >= r->tail.seq && j->seq <= r->head.seq)
+			*p = *j;
+	}
+}
+
 static int walk(struct ring *r, struct pos *p, uint64_t target)
 {
 	struct rview v;
 	int k;
 
+	jump_ahead(r, p, target);
 	while (p->seq < target && !same_place(p, &r->head)) {
 		k = step(r, p, 0, &v);
 		if (k < 0)
@@ -1237,6 +1270,7 @@ static int read_data(struct ring *r, struct pos *p, void *buf, size_t cap,
 	q.seq++;
 	norm(r, &q);
 	*p = q;
+	jump_note(r, &q);
 	return 0;
 }
 
