@@ -750,28 +750,43 @@ static void json_tail(struct buf *b, const struct emit_reading *er,
  * change between the records of one packet (the packet cache below).
  */
 
-/* {"id":"<station>-<packet time>-<seq>- */
-static void head_a(struct buf *b, const struct emit_reading *er)
+/* The station's characters as json_chars writes them: st (st_len bytes)
+ * when given, else escaped now. */
+static void station_chars(struct buf *b, const struct emit_reading *er,
+                          const char *st, size_t st_len)
+{
+	if (st != NULL)
+		buf_add(b, st, st_len);
+	else
+		json_chars(b, er->station);
+}
+
+/* {"id":"<station>-<packet time>-<seq>- (st: see station_chars) */
+static void head_a(struct buf *b, const struct emit_reading *er, const char *st,
+                   size_t st_len)
 {
 	const struct tp_packet *pk = er->packet;
 	char tmp[ID_NUMS_MAX];
 
 	buf_add(b, LIT("{\"id\":\""));
-	json_chars(b, er->station);
+	station_chars(b, er, st, st_len);
 	buf_add(b, tmp,
 	        (size_t)(put_id_prefix(tmp, pk->time_s, id_seq(pk)) - tmp));
 }
 
 /* ","station":"..","seq":..,"layout":"..","time":" -- lname is the layout
- * name as a JSON string (lname_len bytes), or NULL to write it here. */
+ * name as a JSON string (lname_len bytes), or NULL to write it here;
+ * st: see station_chars. */
 static void head_b(struct buf *b, const struct emit_reading *er,
-                   const char *lname, size_t lname_len)
+                   const char *lname, size_t lname_len, const char *st,
+                   size_t st_len)
 {
 	const struct tp_packet *pk = er->packet;
 	char tmp[64], *p;
 
-	buf_add(b, LIT("\",\"station\":"));
-	emit_json_string(b, er->station);
+	buf_add(b, LIT("\",\"station\":\""));
+	station_chars(b, er, st, st_len);
+	buf_addc(b, '"');
 	p = put_mem(tmp, LIT(",\"seq\":"));
 	if (pk->has_seq)
 		p = put_u64(p, pk->seq);
@@ -786,13 +801,18 @@ static void head_b(struct buf *b, const struct emit_reading *er,
 	buf_add(b, LIT(",\"time\":\""));
 }
 
-/* ","received":"..","values":{ */
-static void head_c(struct buf *b, const struct emit_reading *er)
+/* ","received":"..","values":{ -- recv: the received time's text when
+ * given (EMIT_TIME_LEN bytes), else written here. */
+static void head_c(struct buf *b, const struct emit_reading *er,
+                   const char *recv)
 {
 	char tmp[EMIT_TIME_LEN + 32], *p;
 
 	p = put_mem(tmp, LIT("\",\"received\":\""));
-	p = put_time(p, er->received_s);
+	if (recv != NULL)
+		p = put_mem(p, recv, EMIT_TIME_LEN);
+	else
+		p = put_time(p, er->received_s);
 	p = put_mem(p, LIT("\",\"values\":{"));
 	buf_add(b, tmp, (size_t)(p - tmp));
 }
@@ -842,11 +862,11 @@ void emit_json_sci(struct buf *b, const struct emit_reading *er,
 	char tmp[20];
 	bool first;
 
-	head_a(b, er);
+	head_a(b, er, NULL, 0);
 	buf_add(b, tmp, (size_t)(put_u64(tmp, er->reading->record) - tmp));
-	head_b(b, er, NULL, 0);
+	head_b(b, er, NULL, 0, NULL, 0);
 	emit_time(b, er->reading->time_s);
-	head_c(b, er);
+	head_c(b, er, NULL);
 	json_members(b, er, false);
 	first = !any_member(er);
 	science_members(b, er, sc, false, &first);
@@ -928,6 +948,20 @@ struct emit_pcache {
 	size_t cut[5]; /* piece i is text[cut[i] .. cut[i + 1]) */
 	int64_t day;   /* date[] is this day's (INT64_MIN: none) */
 	char date[EMIT_DATE_LEN];
+	/* kept across packets: the station escaped for JSON, and the text
+	 * of the received time (they seldom change from one to the next) */
+	char st_for[PCACHE_STATION]; /* the station st_json is of ("": none) */
+	struct buf st_json;
+	int64_t recv_for;
+	bool recv_ok;
+	char recv[EMIT_TIME_LEN];
+	/* CSV: which derived value fills each derived column (dmap, -1:
+	 * none), for the derived list dmap_of as it was (its name
+	 * pointers, static strings: derive.h) */
+	const struct tp_derived_info *dmap_of;
+	size_t dmap_n;
+	const char *dmap_names[TP_DV_N];
+	int dmap[TP_DV_N];
 };
 
 static struct emit_pcache *pcache_new(void)
@@ -936,6 +970,7 @@ static struct emit_pcache *pcache_new(void)
 
 	if (pc != NULL) {
 		buf_init(&pc->text, PCACHE_TEXT);
+		buf_init(&pc->st_json, PCACHE_STATION * 6);
 		pc->day = INT64_MIN;
 	}
 	return pc;
@@ -946,7 +981,38 @@ static void pcache_free(struct emit_pcache *pc)
 	if (pc == NULL)
 		return;
 	buf_free(&pc->text);
+	buf_free(&pc->st_json);
 	free(pc);
+}
+
+/* The station of er escaped for JSON (from the cache, made when the
+ * station changed), or NULL: then head_a/head_b escape it themselves.
+ * pcache_start has checked that the name fits pc->station. */
+static const char *pcache_station(struct emit_pcache *pc,
+                                  const struct emit_reading *er, size_t *len)
+{
+	if (strcmp(pc->st_for, er->station) != 0 || buf_failed(&pc->st_json)) {
+		pc->st_for[0] = '\0';
+		buf_reset(&pc->st_json);
+		json_chars(&pc->st_json, er->station);
+		if (buf_failed(&pc->st_json))
+			return NULL;
+		memcpy(pc->st_for, pc->station, sizeof(pc->st_for));
+	}
+	*len = pc->st_json.len;
+	return pc->st_json.data != NULL ? pc->st_json.data : "";
+}
+
+/* The received time's text, from the cache when it has not changed. */
+static const char *pcache_received(struct emit_pcache *pc,
+                                   const struct emit_reading *er)
+{
+	if (!pc->recv_ok || pc->recv_for != er->received_s) {
+		put_time(pc->recv, er->received_s);
+		pc->recv_for = er->received_s;
+		pc->recv_ok = true;
+	}
+	return pc->recv;
 }
 
 /* Header slots of the reading: those before the records that it holds. */
@@ -1162,14 +1228,15 @@ static void pcache_json(struct emit_pcache *pc, const struct emit_plan *pl,
                         const struct emit_reading *er, size_t ns)
 {
 	struct buf *t = &pc->text;
-	size_t nh = head_slots(er, ns);
+	size_t nh = head_slots(er, ns), st_len = 0;
+	const char *st = pcache_station(pc, er, &st_len);
 	bool first = true;
 
-	head_a(t, er);
+	head_a(t, er, st, st_len);
 	pcache_cut(pc, 1, false, NULL);
-	head_b(t, er, pl->text, pl->name_len);
+	head_b(t, er, pl->text, pl->name_len, st, st_len);
 	pcache_cut(pc, 2, false, NULL);
-	head_c(t, er);
+	head_c(t, er, pcache_received(pc, er));
 	plan_members(t, pl, er, 0, pl->n_head_cols, nh, false, &first);
 	pcache_cut(pc, 3, false, NULL);
 	first = true;
@@ -1211,11 +1278,11 @@ static void json_uncached(struct buf *b, const struct emit_plan *pl,
 	bool first = true;
 	char tmp[20];
 
-	head_a(b, er);
+	head_a(b, er, NULL, 0);
 	buf_add(b, tmp, (size_t)(put_u64(tmp, er->reading->record) - tmp));
-	head_b(b, er, pl->text, pl->name_len);
+	head_b(b, er, pl->text, pl->name_len, NULL, 0);
 	emit_time(b, er->reading->time_s);
-	head_c(b, er);
+	head_c(b, er, NULL);
 	plan_members(b, pl, er, 0, pl->n_cols, ns, false, &first);
 	science_members(b, er, sc, false, &first);
 	buf_add(b, LIT("},\"flags\":{"));
@@ -1702,6 +1769,28 @@ static void csv_value(struct buf *b, const struct emit_reading *er, size_t n,
 	member_value(b, 0, v, true);
 }
 
+/* csv_value written at p (room: EMIT_FIXED_MAX + 24 bytes): the end, or
+ * NULL when the number needs the slow form. */
+static inline char *csv_value_at(char *p, const struct emit_reading *er,
+                                 size_t n, int slot, int form)
+{
+	const struct tp_value *v;
+	size_t k;
+
+	if (slot < 0 || (size_t)slot >= n)
+		return put_mem(p, LIT(",,"));
+	v = &er->reading->values[slot];
+	if (is_null(v))
+		return put_mem(p, LIT(",,9"));
+	k = fixed_chars(p + 1, v->v, form);
+	if (k == 0)
+		return NULL;
+	p[0] = ',';
+	p += 1 + k;
+	*p++ = ',';
+	return put_u64(p, v->flag);
+}
+
 /* Index of layout l in the table, or n_layouts. */
 static size_t csv_layout_index(const struct emit_csv *c,
                                const struct tp_layout *l)
@@ -1765,8 +1854,23 @@ static void pcache_csv(struct emit_pcache *pc, const struct emit_csv *c,
 	pcache_cut(pc, 3, true, pk->layout);
 }
 
+/* Make the packet cache hold er's packet when it can (else it holds
+ * nothing). */
+static void csv_cache(const struct emit_csv *c, size_t li,
+                      const struct emit_reading *er, size_t ns)
+{
+	struct emit_pcache *pc = c->pc;
+
+	if (pc != NULL && !pcache_hit(pc, er, ns)) {
+		pc->layout = NULL; /* stale, even if no new one can be made */
+		if (!csv_special(er->station) && pcache_start(pc, er, ns))
+			pcache_csv(pc, c, li, er, ns);
+	}
+}
+
 /* id, station, time and seq cells, through the packet cache when it
- * can; returns the first column still to write. */
+ * holds er's packet (csv_cache); returns the first column still to
+ * write. */
 static size_t csv_head(struct buf *b, const struct emit_csv *c, size_t li,
                        const struct emit_reading *er, size_t ns)
 {
@@ -1775,11 +1879,6 @@ static size_t csv_head(struct buf *b, const struct emit_csv *c, size_t li,
 	size_t start = b->len, n, hb_len;
 	const char *s, *hb;
 
-	if (pc != NULL && !pcache_hit(pc, er, ns)) {
-		pc->layout = NULL; /* stale, even if no new one can be made */
-		if (!csv_special(er->station) && pcache_start(pc, er, ns))
-			pcache_csv(pc, c, li, er, ns);
-	}
 	if (pc != NULL && pc->layout == pk->layout) {
 		s = piece(pc, 0, &n);
 		buf_add(b, s, n);
@@ -1801,6 +1900,38 @@ static size_t csv_head(struct buf *b, const struct emit_csv *c, size_t li,
 	return 0;
 }
 
+/* Which of sc's derived values fills each derived column (-1: none),
+ * worked out when sc's list changes; NULL when it cannot be kept (no
+ * cache, or more names than it holds): then the caller looks them up. */
+static const int *csv_dmap(const struct emit_csv *c, const struct emit_sci *sc)
+{
+	struct emit_pcache *pc = c->pc;
+	size_t i, j;
+
+	if (pc == NULL || c->n_dnames > TP_DV_N || sc->n_derived > TP_DV_N)
+		return NULL;
+	if (pc->dmap_of == sc->derived && pc->dmap_n == sc->n_derived) {
+		for (j = 0; j < sc->n_derived; j++)
+			if (pc->dmap_names[j] != sc->derived[j].name)
+				break;
+		if (j == sc->n_derived)
+			return pc->dmap;
+	}
+	for (i = 0; i < c->n_dnames; i++) {
+		pc->dmap[i] = -1;
+		for (j = 0; j < sc->n_derived; j++)
+			if (strcmp(sc->derived[j].name, c->dnames[i]) == 0) {
+				pc->dmap[i] = (int)j;
+				break;
+			}
+	}
+	for (j = 0; j < sc->n_derived; j++)
+		pc->dmap_names[j] = sc->derived[j].name;
+	pc->dmap_of = sc->derived;
+	pc->dmap_n = sc->n_derived;
+	return pc->dmap;
+}
+
 /* The derived and per-test cells of a row: by name from er. */
 static void csv_science_row(struct buf *b, const struct emit_csv *c,
                             const struct emit_reading *er,
@@ -1811,12 +1942,20 @@ static void csv_science_row(struct buf *b, const struct emit_csv *c,
 	size_t i, j;
 	int t;
 
+	const int *map;
+
 	if (sc == NULL)
 		sc = &none;
+	map = csv_dmap(c, sc);
 	for (i = 0; i < c->n_dnames; i++) {
-		for (j = 0; j < sc->n_derived; j++)
-			if (strcmp(sc->derived[j].name, c->dnames[i]) == 0)
-				break;
+		if (map != NULL) {
+			j = map[i] >= 0 ? (size_t)map[i] : sc->n_derived;
+		} else {
+			for (j = 0; j < sc->n_derived; j++)
+				if (strcmp(sc->derived[j].name, c->dnames[i]) ==
+				    0)
+					break;
+		}
 		d = j < sc->n_derived ? &sc->derived[j] : NULL;
 		csv_value(b, er, er->reading->n_values,
 		          d != NULL ? (int)d->slot : -1,
@@ -1841,6 +1980,38 @@ void emit_csv_row(struct buf *b, const struct emit_csv *c,
 	emit_csv_row_sci(b, c, er, NULL);
 }
 
+/* The row of a reading whose packet is in the cache, without derived or
+ * test columns, under one buf_room: true, or false (nothing written)
+ * when it does not fit or a number needs the slow form. */
+static bool csv_in_place(struct buf *b, const struct emit_csv *c, size_t li,
+                         const struct emit_reading *er, size_t ns)
+{
+	struct emit_pcache *pc = c->pc;
+	const int *slot = c->slot + li * c->n_names;
+	const int *form = c->form + li * c->n_names;
+	size_t i;
+	char *p;
+
+	if (pc == NULL || pc->layout != er->packet->layout ||
+	    c->n_dnames + c->n_qnames > 0)
+		return false;
+	p = buf_room(b, pc->text.len + 3 * 16 + 10 + EMIT_TIME_LEN +
+	                    (c->n_names - pc->run) * (EMIT_FIXED_MAX + 24) + 2);
+	if (p == NULL)
+		return false;
+	p = put_piece(p, pc, 0);
+	p = put_u64(p, er->reading->record);
+	p = put_piece(p, pc, 1);
+	p = put_time_cached(p, er->reading->time_s, &pc->day, pc->date);
+	p = put_piece(p, pc, 2);
+	for (i = pc->run; p != NULL && i < c->n_names; i++)
+		p = csv_value_at(p, er, ns, slot[i], form[i]);
+	if (p == NULL)
+		return false;
+	buf_commit(b, put_mem(p, LIT("\r\n")));
+	return true;
+}
+
 void emit_csv_row_sci(struct buf *b, const struct emit_csv *c,
                       const struct emit_reading *er, const struct emit_sci *sc)
 {
@@ -1852,6 +2023,9 @@ void emit_csv_row_sci(struct buf *b, const struct emit_csv *c,
 		return;
 	}
 	ns = n_slots(er);
+	csv_cache(c, li, er, ns);
+	if (csv_in_place(b, c, li, er, ns))
+		return;
 	for (i = csv_head(b, c, li, er, ns); i < c->n_names; i++)
 		csv_value(b, er, ns, c->slot[li * c->n_names + i],
 		          c->form[li * c->n_names + i]);

@@ -13,6 +13,7 @@ Usage: pydecode.py [--limit PACKETS] ARCHIVE > readings.ndjson
 import argparse
 import binascii
 import json
+import os
 import struct
 import sys
 import time
@@ -48,7 +49,7 @@ def flag(name, v):
     return 1 if lo <= v <= hi else 4
 
 
-def readings(pkt):
+def readings(pkt, received):
     kind, st, seq, t, batt, ltemp, lrh = HEADER.unpack_from(pkt)
     name = STATIONS.get(st, str(st))
     bits = int.from_bytes(pkt[13:40], "big") >> 4
@@ -73,7 +74,7 @@ def readings(pkt):
         yield {"id": "%s-%d-%d-%d" % (name, t, seq, k), "station": name,
                "seq": seq, "layout": "quillet-v1",
                "time": time.strftime("%Y-%m-%dT%H:%M:%SZ", time.gmtime(rt)),
-               "values": vals,
+               "received": received, "values": vals,
                "flags": {n: flag(n, v) for n, v in vals.items()}}
 
 
@@ -84,6 +85,9 @@ def main():
     args = ap.parse_args()
     with open(args.archive, "rb") as f:
         data = f.read()
+    # received: the archive's modification time, as tidepost decode does
+    received = time.strftime("%Y-%m-%dT%H:%M:%SZ",
+                             time.gmtime(os.stat(args.archive).st_mtime))
     out = sys.stdout
     n = broken = bad = 0
     for frame in data.split(b"\0"):
@@ -100,7 +104,7 @@ def main():
                 struct.unpack_from(">H", pkt, 40)[0]:
             bad += 1
             continue
-        for r in readings(pkt):
+        for r in readings(pkt, received):
             out.write(json.dumps(r) + "\n")
     print("pydecode: %d frames, %d broken, %d bad checks" % (n, broken, bad),
           file=sys.stderr)

@@ -605,6 +605,67 @@ static void cached_csv_matches(void **state)
 	emit_csv_free(&warm);
 }
 
+/* CSV rows with derived columns: a warm table (packet cache, derived
+ * column map) writes what a fresh one writes, over lists that change,
+ * move and are rebuilt in place as in planned_sci_matches. */
+static void cached_csv_sci_matches(void **state)
+{
+	static const struct tp_layout *const ls[] = { &lay_a, &lay_b };
+	static const char *const dn[] = { "salinity", "o\"2", "pco2",
+		                          "omega,ar", "x", "re\tnamed",
+		                          "never" };
+	static struct tp_derived_info d[SCI_LISTS][3];
+	struct emit_csv warm, cold;
+	struct emit_reading er;
+	struct emit_sci sc;
+	struct scene s;
+	struct buf want, got;
+	size_t nv, j;
+	int i;
+
+	(void)state;
+	memset(&s, 0, sizeof(s));
+	s.l = &lay_b;
+	s.pk.layout = &lay_b;
+	s.station = "rf2";
+	assert_int_equal(emit_csv_init(&warm, ls, N(ls)), 0);
+	assert_int_equal(emit_csv_science(&warm, dn, N(dn), NULL, 0), 0);
+	buf_init(&want, 1 << 16);
+	buf_init(&got, 1 << 16);
+	for (i = 0; i < 10000; i++) {
+		scene_step(&s, ls, N(ls));
+		nv = tp_layout_n_values(s.l);
+		sci_lists(d, nv);
+		if (i % 1000 >= 500)
+			for (j = 0; j < 3; j++)
+				d[i % SCI_LISTS][j].name = "re\tnamed";
+		memset(&sc, 0, sizeof(sc));
+		sc.derived = d[below(SCI_LISTS)];
+		sc.n_derived = (size_t)below(4);
+		if (s.r.n_values == nv) {
+			for (j = 0; j < 3; j++)
+				s.r.values[nv + j] = rand_value(&b_head[0]);
+			s.r.n_values = nv + 3;
+		}
+		er = scene_reading(&s);
+		assert_int_equal(emit_csv_init(&cold, ls, N(ls)), 0);
+		assert_int_equal(emit_csv_science(&cold, dn, N(dn), NULL, 0),
+		                 0);
+		buf_reset(&want);
+		buf_reset(&got);
+		emit_csv_row_sci(&want, &cold, &er, &sc);
+		emit_csv_row_sci(&got, &warm, &er, &sc);
+		emit_csv_free(&cold);
+		assert_false(buf_failed(&got));
+		if (strcmp(buf_str(&got), buf_str(&want)) != 0)
+			fail_msg("row %d:\n cached %s fresh  %s", i,
+			         buf_str(&got), buf_str(&want));
+	}
+	buf_free(&want);
+	buf_free(&got);
+	emit_csv_free(&warm);
+}
+
 /* At every cap around a line's length, the planned writer fails exactly
  * when emit_json does, and writes the same when it does not. */
 static void planned_json_caps(void **state)
@@ -828,6 +889,7 @@ int main(void)
 		cmocka_unit_test(planned_json_matches),
 		cmocka_unit_test(planned_sci_matches),
 		cmocka_unit_test(cached_csv_matches),
+		cmocka_unit_test(cached_csv_sci_matches),
 		cmocka_unit_test(planned_json_caps),
 		cmocka_unit_test(unplanned_layout_falls_back),
 		cmocka_unit_test(validated_decode_matches),
