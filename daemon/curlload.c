@@ -60,17 +60,28 @@ struct curl_fns {
 
 /* The symbol behind each member, in member order. */
 static const char *const fn_names[] = {
-    "curl_global_init",        "curl_global_cleanup",
-    "curl_easy_init",          "curl_easy_setopt",
-    "curl_easy_getinfo",       "curl_easy_cleanup",
-    "curl_easy_strerror",      "curl_slist_append",
-    "curl_slist_free_all",     "curl_free",
-    "curl_multi_init",         "curl_multi_setopt",
-    "curl_multi_add_handle",   "curl_multi_remove_handle",
-    "curl_multi_socket_action", "curl_multi_info_read",
-    "curl_multi_cleanup",      "curl_multi_strerror",
-    "curl_url",                "curl_url_cleanup",
-    "curl_url_get",            "curl_url_set",
+    "curl_global_init",
+    "curl_global_cleanup",
+    "curl_easy_init",
+    "curl_easy_setopt",
+    "curl_easy_getinfo",
+    "curl_easy_cleanup",
+    "curl_easy_strerror",
+    "curl_slist_append",
+    "curl_slist_free_all",
+    "curl_free",
+    "curl_multi_init",
+    "curl_multi_setopt",
+    "curl_multi_add_handle",
+    "curl_multi_remove_handle",
+    "curl_multi_socket_action",
+    "curl_multi_info_read",
+    "curl_multi_cleanup",
+    "curl_multi_strerror",
+    "curl_url",
+    "curl_url_cleanup",
+    "curl_url_get",
+    "curl_url_set",
     "curl_url_strerror",
 };
 
@@ -105,7 +116,8 @@ static bool load(void)
 	h = dlopen(TP_CURL_SONAME, RTLD_NOW | RTLD_LOCAL);
 	if (h == NULL) {
 		e = dlerror();
-		snprintf(why, sizeof(why), "%s", e != NULL ? e : TP_CURL_SONAME);
+		snprintf(why, sizeof(why), "%s",
+		         e != NULL ? e : TP_CURL_SONAME);
 		return false;
 	}
 	for (i = 0; i < sizeof(got) / sizeof(got[0]); i++) {
@@ -157,7 +169,7 @@ CURL *curl_easy_init(void)
  * curl_off_t.  It is read as that type and passed on as that type.
  */
 #define OPT_LONG(o) ((o) < CURLOPTTYPE_OBJECTPOINT)
-#define OPT_FUNC(o) \
+#define OPT_FUNC(o)                                                            \
 	((o) >= CURLOPTTYPE_FUNCTIONPOINT && (o) < CURLOPTTYPE_OFF_T)
 #define OPT_OFFT(o) ((o) >= CURLOPTTYPE_OFF_T && (o) < CURLOPTTYPE_BLOB)
 
