@@ -8,7 +8,6 @@
 #include <inttypes.h>
 #include <math.h>
 #include <netinet/in.h>
-#include <poll.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -231,63 +230,9 @@ static void log_event(const struct alert_event *ev)
 static void http_kick(struct target *t);
 static void drain_msgs(struct alert *a);
 
-static void on_fd(void *arg, int fd, short revents)
+static void after_curl(void *arg)
 {
-	struct alert *a = arg;
-	int ev = 0, running;
-
-	if (revents & (POLLIN | POLLHUP))
-		ev |= CURL_CSELECT_IN;
-	if (revents & POLLOUT)
-		ev |= CURL_CSELECT_OUT;
-	if (revents & (POLLERR | POLLNVAL))
-		ev |= CURL_CSELECT_ERR;
-	curl_multi_socket_action(a->multi, fd, ev, &running);
-	drain_msgs(a);
-}
-
-static void on_curl_timer(void *arg)
-{
-	struct alert *a = arg;
-	int running;
-
-	curl_multi_socket_action(a->multi, CURL_SOCKET_TIMEOUT, 0, &running);
-	drain_msgs(a);
-}
-
-static int sock_cb(CURL *e, curl_socket_t s, int what, void *arg, void *sp)
-{
-	struct alert *a = arg;
-	short ev = 0;
-
-	if (what == CURL_POLL_REMOVE) {
-		loop_unwatch(a->loop, s);
-		return 0;
-	}
-	if (what == CURL_POLL_IN || what == CURL_POLL_INOUT)
-		ev |= POLLIN;
-	if (what == CURL_POLL_OUT || what == CURL_POLL_INOUT)
-		ev |= POLLOUT;
-	if (loop_watch(a->loop, s, ev, on_fd, a) != 0) {
-		log_err("alert: poll: too many open sockets");
-		return -1;
-	}
-	return 0;
-}
-
-static int timer_cb(CURLM *m, long timeout_ms, void *arg)
-{
-	struct alert *a = arg;
-
-	if (timeout_ms < 0) {
-		loop_timer_disarm(a->loop, &a->curl_timer);
-		return 0;
-	}
-	if (loop_timer_arm(a->loop, &a->curl_timer, timeout_ms) != 0) {
-		log_err("alert: timer: too many timers");
-		return -1;
-	}
-	return 0;
+	drain_msgs(arg);
 }
 
 static size_t write_cb(char *data, size_t size, size_t n, void *arg)
@@ -347,7 +292,7 @@ static void finished(struct target *t, CURLcode code)
 
 	curl_easy_getinfo(t->easy, CURLINFO_RESPONSE_CODE, &status);
 	curl_easy_getinfo(t->easy, CURLINFO_SSL_VERIFYRESULT, &verify);
-	curl_multi_remove_handle(t->a->multi, t->easy);
+	curl_multi_remove_handle(t->a->cm.multi, t->easy);
 	t->in_flight = false;
 	c = backoff_classify(status, (int)code, verify != 0, t->capped);
 	if (code != CURLE_OK && !(t->capped && status > 0))
@@ -372,7 +317,7 @@ static void drain_msgs(struct alert *a)
 	CURLMsg *msg;
 	int left;
 
-	while ((msg = curl_multi_info_read(a->multi, &left)) != NULL) {
+	while ((msg = curl_multi_info_read(a->cm.multi, &left)) != NULL) {
 		if (msg->msg != CURLMSG_DONE)
 			continue;
 		t = NULL;
@@ -426,7 +371,7 @@ static void http_kick(struct target *t)
 	curl_easy_setopt(t->easy, CURLOPT_POSTFIELDS, m->json);
 	curl_easy_setopt(t->easy, CURLOPT_POSTFIELDSIZE_LARGE,
 	                 (curl_off_t)strlen(m->json));
-	mc = curl_multi_add_handle(t->a->multi, t->easy);
+	mc = curl_multi_add_handle(t->a->cm.multi, t->easy);
 	if (mc != CURLM_OK) {
 		retry(t, curl_multi_strerror(mc));
 		return;
@@ -515,31 +460,19 @@ static int read_auth(struct target *t, char *err, size_t cap)
 static int easy_setup(struct target *t)
 {
 	long ms = (long)(t->cfg->timeout_s > 0 ? t->cfg->timeout_s : 10) * 1000;
-	CURL *e = t->easy;
-	CURLcode rc = CURLE_OK;
+	struct curlbase base = {t->cfg->url,
+	                        t->plain,
+	                        t->cfg->ca_file,
+	                        ms < 10000 ? ms : 10000L,
+	                        ms,
+	                        write_cb,
+	                        t,
+	                        t->errbuf};
 
-	rc |= curl_easy_setopt(e, CURLOPT_URL, t->cfg->url);
-	rc |= curl_easy_setopt(e, CURLOPT_NOSIGNAL, 1L);
-	rc |= curl_easy_setopt(e, CURLOPT_PROTOCOLS_STR,
-	                       t->plain ? "http,https" : "https");
-	rc |= curl_easy_setopt(e, CURLOPT_REDIR_PROTOCOLS_STR, "https");
-	rc |= curl_easy_setopt(e, CURLOPT_FOLLOWLOCATION, 0L);
-	rc |= curl_easy_setopt(e, CURLOPT_SSL_VERIFYPEER, 1L);
-	rc |= curl_easy_setopt(e, CURLOPT_SSL_VERIFYHOST, 2L);
-	if (t->cfg->ca_file != NULL) {
-		rc |= curl_easy_setopt(e, CURLOPT_CAINFO, t->cfg->ca_file);
-		rc |= curl_easy_setopt(e, CURLOPT_CAPATH, (char *)NULL);
-	}
-	rc |= curl_easy_setopt(e, CURLOPT_CONNECTTIMEOUT_MS,
-	                       ms < 10000 ? ms : 10000L);
-	rc |= curl_easy_setopt(e, CURLOPT_TIMEOUT_MS, ms);
-	rc |= curl_easy_setopt(e, CURLOPT_USERAGENT, "tidepost/" TP_VERSION);
-	rc |= curl_easy_setopt(e, CURLOPT_WRITEFUNCTION, write_cb);
-	rc |= curl_easy_setopt(e, CURLOPT_WRITEDATA, t);
-	rc |= curl_easy_setopt(e, CURLOPT_ERRORBUFFER, t->errbuf);
-	rc |= curl_easy_setopt(e, CURLOPT_PRIVATE, t);
-	rc |= curl_easy_setopt(e, CURLOPT_POST, 1L);
-	return rc == CURLE_OK ? 0 : -1;
+	if (curlbase_setup(t->easy, &base) != 0 ||
+	    curl_easy_setopt(t->easy, CURLOPT_PRIVATE, t) != CURLE_OK)
+		return -1;
+	return 0;
 }
 
 static int http_init(struct target *t, char *err, size_t cap)
@@ -606,18 +539,10 @@ void alert_stat(const struct alert *a, struct alert_stat *st)
 
 static int multi_setup(struct alert *a)
 {
-	CURLMcode rc = CURLM_OK;
-
 	a->global_init = curl_global_init(CURL_GLOBAL_DEFAULT) == CURLE_OK;
-	a->multi = a->global_init ? curl_multi_init() : NULL;
-	if (a->multi == NULL)
+	if (!a->global_init)
 		return -1;
-	rc |= curl_multi_setopt(a->multi, CURLMOPT_SOCKETFUNCTION, sock_cb);
-	rc |= curl_multi_setopt(a->multi, CURLMOPT_SOCKETDATA, a);
-	rc |= curl_multi_setopt(a->multi, CURLMOPT_TIMERFUNCTION, timer_cb);
-	rc |= curl_multi_setopt(a->multi, CURLMOPT_TIMERDATA, a);
-	loop_timer_init(&a->curl_timer, on_curl_timer, a);
-	return rc == CURLM_OK ? 0 : -1;
+	return curlmulti_init(&a->cm, a->loop, after_curl, a, "alert");
 }
 
 static int targets(struct alert *a, char *err, size_t cap)
@@ -681,7 +606,7 @@ static void target_free(struct target *t)
 	loop_timer_disarm(t->a->loop, &t->timer);
 	if (t->easy != NULL) {
 		if (t->in_flight)
-			curl_multi_remove_handle(t->a->multi, t->easy);
+			curl_multi_remove_handle(t->a->cm.multi, t->easy);
 		curl_easy_cleanup(t->easy);
 	}
 	curl_slist_free_all(t->hdrs);
@@ -702,10 +627,7 @@ void alert_free(struct alert *a)
 		return;
 	for (i = 0; a->t != NULL && i < a->n_t; i++)
 		target_free(&a->t[i]);
-	if (a->multi != NULL) {
-		loop_timer_disarm(a->loop, &a->curl_timer);
-		curl_multi_cleanup(a->multi);
-	}
+	curlmulti_free(&a->cm);
 	if (a->global_init)
 		curl_global_cleanup();
 	free(a->t);

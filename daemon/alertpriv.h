@@ -16,6 +16,7 @@
 
 #include "alert.h"
 #include "backoff.h"
+#include "curlmulti.h"
 
 #define ALERT_ENV_MAX  20 /* variables of an exec child */
 #define ALERT_NAME_MAX 32
@@ -57,9 +58,8 @@ struct target {
 struct alert {
 	const struct cfg_alerts *cfg;
 	struct loop *loop;
-	CURLM *multi;
+	struct curlmulti cm;
 	bool global_init;
-	struct loop_timer curl_timer;
 	struct target *t;
 	size_t n_t;
 	struct alert_stat st;

@@ -10,7 +10,6 @@
 #include <errno.h>
 #include <fcntl.h>
 #include <inttypes.h>
-#include <poll.h>
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
@@ -21,6 +20,7 @@
 
 #include "backoff.h"
 #include "curlload.h"
+#include "curlmulti.h"
 #include "log.h"
 #include "post.h"
 #include "postbody.h"
@@ -33,9 +33,9 @@
 struct post {
 	const struct cfg_output *o;
 	struct post_ctx ctx;
-	CURLM *multi;
+	struct curlmulti cm;
+	char who[RING_NAME_MAX + 8]; /* "post: NAME", for curlmulti's logs */
 	CURL *easy;
-	struct loop_timer curl_timer;  /* libcurl's own timeout */
 	struct loop_timer retry_timer; /* backoff and pause */
 	struct backoff rng;
 	struct postbody pb;
@@ -129,63 +129,9 @@ static void log_failure(struct post *p, const char *what, int64_t delay)
 
 static void drain_msgs(struct post *p);
 
-static void on_fd(void *arg, int fd, short revents)
+static void after_curl(void *arg)
 {
-	struct post *p = arg;
-	int ev = 0, running;
-
-	if (revents & (POLLIN | POLLHUP))
-		ev |= CURL_CSELECT_IN;
-	if (revents & POLLOUT)
-		ev |= CURL_CSELECT_OUT;
-	if (revents & (POLLERR | POLLNVAL))
-		ev |= CURL_CSELECT_ERR;
-	curl_multi_socket_action(p->multi, fd, ev, &running);
-	drain_msgs(p);
-}
-
-static void on_curl_timer(void *arg)
-{
-	struct post *p = arg;
-	int running;
-
-	curl_multi_socket_action(p->multi, CURL_SOCKET_TIMEOUT, 0, &running);
-	drain_msgs(p);
-}
-
-static int sock_cb(CURL *e, curl_socket_t s, int what, void *arg, void *sp)
-{
-	struct post *p = arg;
-	short ev = 0;
-
-	if (what == CURL_POLL_REMOVE) {
-		loop_unwatch(p->ctx.loop, s);
-		return 0;
-	}
-	if (what == CURL_POLL_IN || what == CURL_POLL_INOUT)
-		ev |= POLLIN;
-	if (what == CURL_POLL_OUT || what == CURL_POLL_INOUT)
-		ev |= POLLOUT;
-	if (loop_watch(p->ctx.loop, s, ev, on_fd, p) != 0) {
-		log_err("post: poll: %s: too many open sockets", p->o->name);
-		return -1;
-	}
-	return 0;
-}
-
-static int timer_cb(CURLM *m, long timeout_ms, void *arg)
-{
-	struct post *p = arg;
-
-	if (timeout_ms < 0) {
-		loop_timer_disarm(p->ctx.loop, &p->curl_timer);
-		return 0;
-	}
-	if (loop_timer_arm(p->ctx.loop, &p->curl_timer, timeout_ms) != 0) {
-		log_err("post: timer: %s: too many timers", p->o->name);
-		return -1;
-	}
-	return 0;
+	drain_msgs(arg);
 }
 
 /* The response body is not needed: count it, stop past the cap. */
@@ -344,27 +290,21 @@ static uint32_t ms_of(uint32_t s, uint32_t dflt)
 
 static int easy_setup(struct post *p, bool plain)
 {
-	const char *protos = plain ? "http,https" : "https";
 	uint32_t t_s = p->o->timeout_s > 0 ? p->o->timeout_s : 30;
 	long low = (long)(t_s * 2 / 3 > 5 ? t_s * 2 / 3 : 5);
+	struct curlbase base = {p->o->url,
+	                        plain,
+	                        p->o->ca_file,
+	                        (long)ms_of(p->o->connect_timeout_s, 10),
+	                        (long)ms_of(t_s, 30),
+	                        write_cb,
+	                        p,
+	                        p->errbuf};
 	CURL *e = p->easy;
 	CURLcode rc = CURLE_OK;
 
-	rc |= curl_easy_setopt(e, CURLOPT_URL, p->o->url);
-	rc |= curl_easy_setopt(e, CURLOPT_NOSIGNAL, 1L);
-	rc |= curl_easy_setopt(e, CURLOPT_VERBOSE, 0L);
-	rc |= curl_easy_setopt(e, CURLOPT_PROTOCOLS_STR, protos);
-	rc |= curl_easy_setopt(e, CURLOPT_REDIR_PROTOCOLS_STR, "https");
-	rc |= curl_easy_setopt(e, CURLOPT_FOLLOWLOCATION, 0L);
-	rc |= curl_easy_setopt(e, CURLOPT_SSL_VERIFYPEER, 1L);
-	rc |= curl_easy_setopt(e, CURLOPT_SSL_VERIFYHOST, 2L);
-	if (p->o->ca_file != NULL) {
-		rc |= curl_easy_setopt(e, CURLOPT_CAINFO, p->o->ca_file);
-		rc |= curl_easy_setopt(e, CURLOPT_CAPATH, (char *)NULL);
-	}
-	rc |= curl_easy_setopt(e, CURLOPT_CONNECTTIMEOUT_MS,
-	                       (long)ms_of(p->o->connect_timeout_s, 10));
-	rc |= curl_easy_setopt(e, CURLOPT_TIMEOUT_MS, (long)ms_of(t_s, 30));
+	if (curlbase_setup(e, &base) != 0)
+		return -1;
 	rc |= curl_easy_setopt(e, CURLOPT_LOW_SPEED_LIMIT, 1L);
 	rc |= curl_easy_setopt(e, CURLOPT_LOW_SPEED_TIME, low);
 	rc |= curl_easy_setopt(e, CURLOPT_MAXAGE_CONN, 60L);
@@ -372,29 +312,10 @@ static int easy_setup(struct post *p, bool plain)
 	rc |= curl_easy_setopt(e, CURLOPT_TCP_KEEPALIVE, 1L);
 	rc |= curl_easy_setopt(e, CURLOPT_TCP_KEEPIDLE, 60L);
 	rc |= curl_easy_setopt(e, CURLOPT_TCP_KEEPINTVL, 30L);
-	rc |= curl_easy_setopt(e, CURLOPT_USERAGENT, "tidepost/" TP_VERSION);
 	rc |= curl_easy_setopt(e, CURLOPT_HTTPHEADER, p->hdrs);
-	rc |= curl_easy_setopt(e, CURLOPT_WRITEFUNCTION, write_cb);
-	rc |= curl_easy_setopt(e, CURLOPT_WRITEDATA, p);
 	rc |= curl_easy_setopt(e, CURLOPT_HEADERFUNCTION, header_cb);
 	rc |= curl_easy_setopt(e, CURLOPT_HEADERDATA, p);
-	rc |= curl_easy_setopt(e, CURLOPT_ERRORBUFFER, p->errbuf);
-	rc |= curl_easy_setopt(e, CURLOPT_POST, 1L);
 	return rc == CURLE_OK ? 0 : -1;
-}
-
-static int multi_setup(struct post *p)
-{
-	CURLMcode rc = CURLM_OK;
-
-	p->multi = curl_multi_init();
-	if (p->multi == NULL)
-		return -1;
-	rc |= curl_multi_setopt(p->multi, CURLMOPT_SOCKETFUNCTION, sock_cb);
-	rc |= curl_multi_setopt(p->multi, CURLMOPT_SOCKETDATA, p);
-	rc |= curl_multi_setopt(p->multi, CURLMOPT_TIMERFUNCTION, timer_cb);
-	rc |= curl_multi_setopt(p->multi, CURLMOPT_TIMERDATA, p);
-	return rc == CURLM_OK ? 0 : -1;
 }
 
 static int dl_path(struct post *p)
@@ -430,7 +351,8 @@ static int setup(struct post *p, char *err, size_t cap)
 	}
 	p->easy = curl_easy_init();
 	if (dl_path(p) != 0 || p->easy == NULL || build_headers(p) != 0 ||
-	    easy_setup(p, plain) != 0 || multi_setup(p) != 0) {
+	    easy_setup(p, plain) != 0 ||
+	    curlmulti_init(&p->cm, p->ctx.loop, after_curl, p, p->who) != 0) {
 		snprintf(err, cap,
 		         "post: %s: libcurl set-up failed (out of"
 		         " memory, or libcurl older than 7.85)",
@@ -452,8 +374,8 @@ int post_new(const struct cfg_output *o, const struct post_ctx *ctx,
 	}
 	p->o = o;
 	p->ctx = *ctx;
+	snprintf(p->who, sizeof(p->who), "post: %s", o->name);
 	p->global_init = curl_global_init(CURL_GLOBAL_DEFAULT) == CURLE_OK;
-	loop_timer_init(&p->curl_timer, on_curl_timer, p);
 	loop_timer_init(&p->retry_timer, on_retry, p);
 	backoff_seed_random(&p->rng);
 	p->limit = o->batch > 0 ? o->batch : 500;
@@ -628,7 +550,7 @@ static void send_batch(struct post *p)
 	p->resp_bytes = 0;
 	p->capped = p->ra_seen = false;
 	p->errbuf[0] = '\0';
-	mc = curl_multi_add_handle(p->multi, p->easy);
+	mc = curl_multi_add_handle(p->cm.multi, p->easy);
 	if (mc != CURLM_OK) {
 		retry_later(p, curl_multi_strerror(mc), 0);
 		return;
@@ -865,11 +787,11 @@ static void drain_msgs(struct post *p)
 	int left;
 	CURLcode cc;
 
-	while ((m = curl_multi_info_read(p->multi, &left)) != NULL) {
+	while ((m = curl_multi_info_read(p->cm.multi, &left)) != NULL) {
 		if (m->msg != CURLMSG_DONE || m->easy_handle != p->easy)
 			continue;
 		cc = m->data.result;
-		curl_multi_remove_handle(p->multi, p->easy);
+		curl_multi_remove_handle(p->cm.multi, p->easy);
 		p->inflight = false;
 		on_done(p, cc);
 		return; /* one transfer at a time */
@@ -979,10 +901,9 @@ void post_free(struct post *p)
 	if (p == NULL)
 		return;
 	if (p->inflight)
-		curl_multi_remove_handle(p->multi, p->easy);
+		curl_multi_remove_handle(p->cm.multi, p->easy);
 	curl_easy_cleanup(p->easy);
-	curl_multi_cleanup(p->multi); /* closes sockets: unwatches */
-	loop_timer_disarm(p->ctx.loop, &p->curl_timer);
+	curlmulti_free(&p->cm);
 	loop_timer_disarm(p->ctx.loop, &p->retry_timer);
 	if (p->hdr_tail != NULL)
 		p->hdr_tail->next = NULL; /* keynode is ours */
