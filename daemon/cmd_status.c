@@ -30,6 +30,7 @@
 
 #include <cjson/cJSON.h>
 
+#include "fdio.h"
 #include "cli.h"
 #include "emit.h"
 #include "log.h"
@@ -75,34 +76,6 @@ struct look {
 
 /* ---- reading and judging -----------------------------------------------
  */
-
-static char *slurp(const char *path, size_t *len)
-{
-	int fd = open(path, O_RDONLY | O_CLOEXEC);
-	struct stat sb;
-	char *text = NULL;
-	ssize_t n;
-
-	if (fd < 0)
-		return NULL;
-	if (fstat(fd, &sb) != 0 || !S_ISREG(sb.st_mode) ||
-	    sb.st_size > STATUS_MAX) {
-		errno = EFBIG;
-		goto out_close;
-	}
-	text = malloc((size_t)sb.st_size + 1);
-	n = text != NULL ? read(fd, text, (size_t)sb.st_size) : -1;
-	if (n < 0) {
-		free(text);
-		text = NULL;
-		goto out_close;
-	}
-	text[n] = '\0';
-	*len = (size_t)n;
-out_close:
-	close(fd);
-	return text;
-}
 
 static double num(const cJSON *o, const char *k)
 {
@@ -180,7 +153,7 @@ static void judge(struct look *lk)
 {
 	const char *state;
 	size_t len = 0;
-	char *text = slurp(lk->path, &len);
+	char *text = fdio_slurp(lk->path, 0, STATUS_MAX, &len);
 
 	if (text == NULL) {
 		lk->v = errno == ENOENT ? V_ABSENT : V_UNREADABLE;

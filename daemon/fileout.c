@@ -11,6 +11,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "fdio.h"
 #include "fileout.h"
 #include "log.h"
 
@@ -32,25 +33,6 @@ struct fileout {
 	struct fileout_stat st;
 	char *buf; /* FILEOUT_CHUNK_BYTES */
 };
-
-static int write_all(int fd, const char *p, size_t n)
-{
-	ssize_t w;
-
-	while (n > 0) {
-		w = write(fd, p, n);
-		if (w < 0 && errno == EINTR)
-			continue;
-		if (w <= 0) {
-			if (w == 0)
-				errno = EIO;
-			return -1;
-		}
-		p += w;
-		n -= (size_t)w;
-	}
-	return 0;
-}
 
 static void arm(struct fileout *f, int64_t ms)
 {
@@ -136,7 +118,7 @@ static void fileout_round(void *arg)
 		return;
 	}
 	/* write -> fdatasync -> only then ack */
-	if (write_all(f->fd, f->buf, (size_t)n) != 0) {
+	if (fdio_write_all(f->fd, f->buf, (size_t)n) != 0) {
 		round_failed(f, "write", errno);
 		return;
 	}
@@ -180,7 +162,7 @@ static int fix_tail(struct fileout *f)
 	for (cut = n - 1; cut >= 0 && tail[cut] != '\n'; cut--)
 		;
 	if (cut < 0 && from > 0)
-		return write_all(f->fd, "\n", 1) == 0 ? fix_tail(f) : -1;
+		return fdio_write_all(f->fd, "\n", 1) == 0 ? fix_tail(f) : -1;
 	f->good = from + cut + 1;
 	log_warn("output: %s: %s: dropping a cut-off last line (%" PRId64
 	         " bytes) before appending",

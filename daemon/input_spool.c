@@ -49,6 +49,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "fdio.h"
 #include "input.h"
 #include "log.h"
 #include "seen.h"
@@ -253,25 +254,6 @@ static enum file_rc ingest_file(struct spool_in *s, struct pend *p, size_t len,
 	return FILE_PEND;
 }
 
-/* Read the whole (regular, small) file open at fd into s->buf. */
-static ssize_t read_file(int fd, uint8_t *buf, size_t cap)
-{
-	size_t got = 0;
-	ssize_t n;
-
-	while (got < cap) {
-		n = read(fd, buf + got, cap - got);
-		if (n < 0 && errno == EINTR)
-			continue;
-		if (n < 0)
-			return -1;
-		if (n == 0)
-			break;
-		got += (size_t)n;
-	}
-	return (ssize_t)got;
-}
-
 /* Open name safely and check what it is; fd or -1 (handled). */
 static int open_entry(struct spool_in *s, const char *name, struct stat *sb)
 {
@@ -318,8 +300,9 @@ static enum file_rc take_file(struct spool_in *s, const char *name)
 	memcpy(p->name, name, strlen(name) + 1);
 	p->dev = sb.st_dev;
 	p->ino = sb.st_ino;
-	n = sb.st_size > SPOOL_FILE_MAX ? 0
-	                                : read_file(fd, s->buf, sizeof(s->buf));
+	n = sb.st_size > SPOOL_FILE_MAX
+	        ? 0
+	        : fdio_read_all(fd, s->buf, sizeof(s->buf));
 	if (sb.st_size > SPOOL_FILE_MAX || n > SPOOL_FILE_MAX)
 		pend_reject(p,
 		            "larger than the spool limit of 65536 "

@@ -18,6 +18,7 @@
 
 #include <curl/curl.h>
 
+#include "fdio.h"
 #include "backoff.h"
 #include "curlload.h"
 #include "curlmulti.h"
@@ -599,22 +600,6 @@ static void delivered(struct post *p)
 	start(p);
 }
 
-static int write_all(int fd, const char *b, size_t n)
-{
-	ssize_t w;
-
-	while (n > 0) {
-		w = write(fd, b, n);
-		if (w < 0 && errno == EINTR)
-			continue;
-		if (w < 0)
-			return -1;
-		b += w;
-		n -= (size_t)w;
-	}
-	return 0;
-}
-
 /* Append the batch's ring payloads to fd, one per line. */
 static int dl_write(struct post *p, int fd)
 {
@@ -628,8 +613,8 @@ static int dl_write(struct post *p, int fd)
 			errno = errno ? errno : EIO;
 			return -1;
 		}
-		if (write_all(fd, p->payload, len) != 0 ||
-		    write_all(fd, "\n", 1) != 0)
+		if (fdio_write_all(fd, p->payload, len) != 0 ||
+		    fdio_write_all(fd, "\n", 1) != 0)
 			return -1;
 	}
 	return fdatasync(fd);

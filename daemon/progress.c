@@ -1,6 +1,7 @@
 /*
  * progress.c - the progress line on stderr; see progress.h.
  */
+#include "fdio.h"
 #include "progress.h"
 
 #include <errno.h>
@@ -18,21 +19,6 @@ static int64_t mono_ms(void)
 	if (clock_gettime(CLOCK_MONOTONIC, &ts) != 0)
 		return 0;
 	return (int64_t)ts.tv_sec * 1000 + ts.tv_nsec / 1000000;
-}
-
-static void write_all(int fd, const char *s, size_t n)
-{
-	ssize_t w;
-
-	while (n > 0) {
-		w = write(fd, s, n);
-		if (w < 0 && errno == EINTR)
-			continue;
-		if (w <= 0)
-			return; /* a display: nothing to recover */
-		s += w;
-		n -= (size_t)w;
-	}
 }
 
 void progress_start_fd(struct progress *p, int fd, bool force_on,
@@ -134,7 +120,8 @@ static void draw(struct progress *p, int64_t now)
 		return;
 	if ((size_t)n >= sizeof(line))
 		n = (int)sizeof(line) - 1;
-	write_all(p->fd, line, (size_t)n);
+	if (fdio_write_all(p->fd, line, (size_t)n) != 0)
+		p->on = false; /* a display that cannot be written: stop it */
 	p->shown = true;
 }
 
@@ -157,7 +144,8 @@ void progress_clear(struct progress *p)
 {
 	if (!p->on || !p->shown)
 		return;
-	write_all(p->fd, "\r\033[K", 4);
+	if (fdio_write_all(p->fd, "\r\033[K", 4) != 0)
+		p->on = false; /* a display that cannot be written: stop it */
 	p->shown = false;
 }
 

@@ -14,6 +14,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "fdio.h"
 #include "seen.h"
 
 #define SEEN_MAGIC   "TPSN"
@@ -135,26 +136,6 @@ static uint64_t get_le64(const unsigned char *p)
 	return v;
 }
 
-static int write_all(int fd, const void *p, size_t n)
-{
-	const char *c = p;
-	ssize_t w;
-
-	while (n > 0) {
-		w = write(fd, c, n);
-		if (w < 0 && errno == EINTR)
-			continue;
-		if (w <= 0) {
-			if (w == 0)
-				errno = EIO;
-			return -1;
-		}
-		c += w;
-		n -= (size_t)w;
-	}
-	return 0;
-}
-
 static void file_path(const struct seen *s, int i, char *out, size_t cap)
 {
 	snprintf(out, cap, "%s/seen.%d", s->dir, i);
@@ -225,7 +206,7 @@ static int start_file(struct seen *s, int i, uint64_t gen)
 	if (fd < 0)
 		return -1;
 	put_le64(h + 8, gen);
-	if (write_all(fd, h, sizeof(h)) != 0 || fdatasync(fd) != 0 ||
+	if (fdio_write_all(fd, h, sizeof(h)) != 0 || fdatasync(fd) != 0 ||
 	    sync_dir(s->dir) != 0) {
 		close(fd);
 		return -1;
@@ -357,7 +338,7 @@ static int append_pending(struct seen *s)
 
 	for (i = 0; i < s->n_pend; i++)
 		put_le64(b + 8 * i, s->pend[i]);
-	if (write_all(s->fd, b, 8 * s->n_pend) != 0)
+	if (fdio_write_all(s->fd, b, 8 * s->n_pend) != 0)
 		return -1;
 	return fdatasync(s->fd);
 }

@@ -11,6 +11,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "fdio.h"
 #include "alert.h"
 #include "emit.h"
 #include "ingest.h"
@@ -44,22 +45,6 @@ static int64_t real_s(const struct status *st)
 
 /* ---- writing files -----------------------------------------------------
  */
-
-static int write_all(int fd, const char *p, size_t n)
-{
-	ssize_t k;
-
-	while (n > 0) {
-		k = write(fd, p, n);
-		if (k < 0 && errno == EINTR)
-			continue;
-		if (k < 0)
-			return -1;
-		p += k;
-		n -= (size_t)k;
-	}
-	return 0;
-}
 
 static int sync_dir(const char *path)
 {
@@ -104,7 +89,7 @@ int status_replace_file(const char *path, const char *data, size_t len,
 	if (fd < 0)
 		goto out_err;
 	what = "write";
-	if (write_all(fd, data, len) != 0)
+	if (fdio_write_all(fd, data, len) != 0)
 		goto out_close;
 	what = "fsync";
 	if (durable && fsync(fd) != 0)

@@ -10,6 +10,7 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include "fdio.h"
 #include "token.h"
 
 /* Drop one trailing LF or CRLF, then require visible ASCII only. */
@@ -72,24 +73,6 @@ static const char *check_fd(int fd, bool cred)
 	return NULL;
 }
 
-static ssize_t read_all(int fd, char *b, size_t cap)
-{
-	size_t got = 0;
-	ssize_t n;
-
-	while (got < cap) {
-		n = read(fd, b + got, cap - got);
-		if (n < 0 && errno == EINTR)
-			continue;
-		if (n < 0)
-			return -1;
-		if (n == 0)
-			break;
-		got += (size_t)n;
-	}
-	return (ssize_t)got;
-}
-
 static const char *open_error(int e)
 {
 	if (e == ELOOP)
@@ -116,7 +99,7 @@ int token_read_file(const char *path, char **out, char *err, size_t errcap)
 	else
 		why = check_fd(fd, in_credentials(path));
 	if (why == NULL) {
-		n = read_all(fd, t, TOKEN_MAX + 1);
+		n = fdio_read_all(fd, t, TOKEN_MAX + 1);
 		why = n < 0           ? strerror(errno)
 		      : n > TOKEN_MAX ? "larger than 4096 bytes"
 		                      : NULL;

@@ -27,6 +27,7 @@
 
 #include <cjson/cJSON.h>
 
+#include "fdio.h"
 #include "emit.h"
 #include "log.h"
 #include "status.h"
@@ -206,36 +207,6 @@ static void restore_stations(struct watch *w, const cJSON *obj)
 	}
 }
 
-/* The file's text (malloc'd, NUL-terminated), or NULL: missing (errno
- * ENOENT), unreadable or too big. */
-static char *slurp(const char *path, size_t *len)
-{
-	int fd = open(path, O_RDONLY | O_CLOEXEC | O_NOFOLLOW);
-	char *text = NULL;
-	struct stat sb;
-	ssize_t n;
-
-	if (fd < 0)
-		return NULL;
-	if (fstat(fd, &sb) != 0 || !S_ISREG(sb.st_mode) ||
-	    sb.st_size > STATE_MAX) {
-		errno = EFBIG;
-		goto out_close;
-	}
-	text = malloc((size_t)sb.st_size + 1);
-	n = text != NULL ? read(fd, text, (size_t)sb.st_size) : -1;
-	if (n < 0) {
-		free(text);
-		text = NULL;
-		goto out_close;
-	}
-	text[n] = '\0';
-	*len = (size_t)n;
-out_close:
-	close(fd);
-	return text;
-}
-
 void watch_restore(struct watch *w)
 {
 	const cJSON *list, *el;
@@ -245,7 +216,7 @@ void watch_restore(struct watch *w)
 
 	if (w->ctx.state_path == NULL)
 		return;
-	text = slurp(w->ctx.state_path, &len);
+	text = fdio_slurp(w->ctx.state_path, O_NOFOLLOW, STATE_MAX, &len);
 	if (text == NULL) {
 		if (errno != ENOENT)
 			log_warn("watch: read: %s: %s; open alerts are not "
