@@ -32,7 +32,6 @@
 #include <stdlib.h>
 #include <string.h>
 #include <strings.h>
-#include <sys/file.h>
 #include <sys/stat.h>
 #include <time.h>
 #include <unistd.h>
@@ -335,21 +334,6 @@ static int replay_file(struct replay *rp, const char *path)
 
 /* ---- direct or handed over ---- */
 
-static bool ring_locked(const char *path)
-{
-	int fd = open(path, O_RDONLY | O_CLOEXEC);
-	bool busy = false;
-
-	if (fd < 0)
-		return false;
-	if (flock(fd, LOCK_SH | LOCK_NB) != 0)
-		busy = errno == EWOULDBLOCK;
-	else
-		(void)flock(fd, LOCK_UN);
-	close(fd);
-	return busy;
-}
-
 static int open_handoff(struct replay *rp)
 {
 	char dir[4096];
@@ -378,7 +362,7 @@ static int open_target(struct replay *rp)
 	uint64_t size = (uint64_t)c->ring.size_mb * 1024 * 1024;
 	char err[512];
 
-	if (ring_locked(c->ring.path))
+	if (ringio_in_use(c->ring.path))
 		return open_handoff(rp);
 	if (mkdir(c->state_dir, 0750) != 0 && errno != EEXIST) {
 		log_err("replay: mkdir: %s: %s", c->state_dir, strerror(errno));

@@ -24,7 +24,6 @@
 #include <stdio.h>
 #include <stdlib.h>
 #include <string.h>
-#include <sys/file.h>
 #include <sys/stat.h>
 #include <unistd.h>
 
@@ -210,22 +209,6 @@ static struct ringio_ops ovl_ops(struct overlay *o)
 	return ops;
 }
 
-/* Does a running daemon hold the ring (exclusive flock)? */
-static bool ring_in_use(const char *path)
-{
-	int fd = open(path, O_RDONLY | O_CLOEXEC);
-	bool busy = false;
-
-	if (fd < 0)
-		return false;
-	if (flock(fd, LOCK_SH | LOCK_NB) != 0)
-		busy = errno == EWOULDBLOCK;
-	else
-		(void)flock(fd, LOCK_UN);
-	close(fd);
-	return busy;
-}
-
 /* ---- printing ---- */
 
 struct ring_opts {
@@ -397,7 +380,7 @@ static int ring_show(const struct ring_opts *o, const char *path)
 	struct overlay *ov = calloc(1, sizeof(*ov));
 	struct ring_verify_report v;
 	struct ring_stat st;
-	bool busy = ring_in_use(path);
+	bool busy = ringio_in_use(path);
 	int tries = 0, rc;
 	struct buf b;
 

@@ -139,6 +139,21 @@ const struct ringio_ops *ringio_posix(void)
 
 /* ---- retrying helpers ---- */
 
+bool ringio_in_use(const char *path)
+{
+	int fd = open(path, O_RDONLY | O_CLOEXEC);
+	bool busy = false;
+
+	if (fd < 0)
+		return false;
+	if (flock(fd, LOCK_SH | LOCK_NB) != 0)
+		busy = errno == EWOULDBLOCK;
+	else
+		(void)flock(fd, LOCK_UN);
+	close(fd);
+	return busy;
+}
+
 int ringio_read_all(const struct ringio_ops *o, int fd, void *buf, size_t n,
                     uint64_t off)
 {

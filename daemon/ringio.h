@@ -46,6 +46,7 @@
 #ifndef TIDEPOST_RINGIO_H
 #define TIDEPOST_RINGIO_H
 
+#include <stdbool.h>
 #include <stddef.h>
 #include <stdint.h>
 #include <sys/types.h>
@@ -75,6 +76,10 @@ struct ringio_ops {
 /* The real POSIX implementation (open(2), pread(2), ..., flock(2),
  * statvfs(3)).  A static table; never freed. */
 const struct ringio_ops *ringio_posix(void);
+
+/* Does another process hold the ring file at path (a running daemon's
+ * exclusive flock)?  false when it is free or cannot be opened. */
+bool ringio_in_use(const char *path);
 
 /* Retrying helpers.  read_all/write_all move all n bytes or fail: EINTR
  * is retried, a short transfer continues, a transfer of 0 bytes fails with
