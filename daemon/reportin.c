@@ -24,6 +24,7 @@
 #include "log.h"
 #include "process.h"
 #include "ring.h"
+#include "ringview.h"
 
 #define READ_BYTES (64 * 1024)
 #define ID_MAX     160
@@ -317,27 +318,6 @@ int reportin_readings(struct reportin *in, const char *path)
 
 /* ---- the ring -------------------------------------------------------- */
 
-/* Say why the ring cannot be read, and what to do about it. */
-static void ring_busy(const struct reportin *in, const char *path)
-{
-	size_t i;
-	bool any = false;
-
-	log_err("report: ring: %s is locked by a running 'tidepost run'; "
-	        "the ring can be read only while the daemon is stopped",
-	        path);
-	for (i = 0; in->cfg != NULL && i < in->cfg->n_outputs; i++) {
-		if (in->cfg->outputs[i].kind != CFG_OUT_FILE)
-			continue;
-		log_err("report: instead: tidepost report --readings %s",
-		        in->cfg->outputs[i].path);
-		any = true;
-	}
-	if (!any)
-		log_err("report: instead: add a `file` output to the config "
-		        "and report from its NDJSON file with --readings");
-}
-
 static void ring_records(struct reportin *in, struct ring *ring,
                          const char *path)
 {
@@ -366,22 +346,30 @@ static void ring_records(struct reportin *in, struct ring *ring,
 	}
 }
 
+/* The ring is opened read-only (ringview.h): never changed, and
+ * readable while the daemon runs (then a snapshot). */
 int reportin_ring(struct reportin *in, const char *path)
 {
+	struct ringview *view = ringview_new();
+	struct ringio_ops ops;
 	struct ring *ring = NULL;
 	char err[256];
 
-	if (ring_open(path, 0, NULL, &ring, err, sizeof(err)) != 0) {
-		if (errno == EWOULDBLOCK)
-			ring_busy(in, path);
-		else
-			log_err("%s", err);
+	if (view == NULL) {
+		log_err("report: ring: %s: %s", path, strerror(ENOMEM));
+		in->counts.unreadable++;
+		return -1;
+	}
+	ops = ringview_ops(view);
+	if (ring_open(path, 0, &ops, &ring, err, sizeof(err)) != 0) {
+		log_err("%s", err);
+		ringview_free(view);
 		in->counts.unreadable++;
 		return -1;
 	}
 	ring_records(in, ring, path);
-	if (ring_close(ring) != 0)
-		log_warn("report: ring: close: %s: %s", path, strerror(errno));
+	(void)ring_close(ring); /* its writes went to memory only */
+	ringview_free(view);
 	return 0;
 }
 
