@@ -141,14 +141,19 @@ int64_t loop_next_timer_ms(const struct loop *l)
 	return best;
 }
 
+/* The poll timeout in real ms: the wait on the loop's clock, converted
+ * for a clock faster than real time (rounded up, so never a 0 ms poll for
+ * a timer still ahead), then capped at a day so it fits in an int (the
+ * loop just wakes up and waits again). */
 static int wait_ms(const struct loop *l, int max_wait_ms)
 {
 	int64_t t = loop_next_timer_ms(l);
 
 	if (t < 0 || (max_wait_ms >= 0 && t > max_wait_ms))
 		t = max_wait_ms;
-	if (t > 24 * 3600 * 1000)
-		t = 24 * 3600 * 1000;
+	t = clock_real_wait_ms(l->clock, t);
+	if (t > LOOP_MAX_POLL_MS)
+		t = LOOP_MAX_POLL_MS;
 	return (int)t;
 }
 

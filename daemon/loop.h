@@ -8,7 +8,9 @@
  * realloc.  Timers are caller-owned structs (no allocation) on the
  * monotonic clock of struct clock.  Idle, the loop sleeps in poll until
  * the nearest timer: there are no periodic wake-ups unless a caller arms
- * a timer.
+ * a timer.  Every time and delay here is on that clock; only the poll
+ * timeout is real time, converted with clock_real_wait_ms() when the
+ * clock runs faster than real time (clock.h).
  *
  * Called by daemon/run.c; callbacks may (un)watch fds and arm/disarm
  * timers, including their own, while the loop dispatches.
@@ -21,8 +23,9 @@
 
 #include "clock.h"
 
-#define LOOP_MAX_FDS    64
-#define LOOP_MAX_TIMERS 64
+#define LOOP_MAX_FDS     64
+#define LOOP_MAX_TIMERS  64
+#define LOOP_MAX_POLL_MS (24 * 3600 * 1000) /* longest single poll, real ms */
 
 struct loop;
 
@@ -60,9 +63,9 @@ int loop_timer_arm(struct loop *l, struct loop_timer *t, int64_t delay_ms)
 void loop_timer_disarm(struct loop *l, struct loop_timer *t);
 
 /* Poll once: wait until an fd is ready, the nearest timer is due, or
- * max_wait_ms passed (-1: no limit), then dispatch.  Returns the number of
- * callbacks run, or -1 on a poll error other than EINTR (EINTR returns 0,
- * so signal flags can be checked by the caller). */
+ * max_wait_ms of the loop's clock passed (-1: no limit), then dispatch.
+ * Returns the number of callbacks run, or -1 on a poll error other than
+ * EINTR (EINTR returns 0, so signal flags can be checked by the caller). */
 int loop_run_once(struct loop *l, int max_wait_ms);
 
 /* Milliseconds until the nearest armed timer (-1 if none). */

@@ -51,7 +51,7 @@ static int64_t real(void *arg)
 	return clock_real_ms(clock_system()) + jump_ms;
 }
 
-static const struct clock moved = {mono, real, NULL};
+static const struct clock moved = {mono, real, NULL, 0};
 
 static char dir[64], recorder[4096];
 static struct loop *loop;

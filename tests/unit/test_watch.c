@@ -44,7 +44,7 @@ static int64_t fake_real(void *arg)
 	return T0_S * 1000 + now_ms;
 }
 
-static const struct clock fake = {fake_mono, fake_real, NULL};
+static const struct clock fake = {fake_mono, fake_real, NULL, 0};
 
 struct rec {
 	enum alert_kind kind;
