@@ -400,6 +400,12 @@ static int plan_build(struct emit_plan *pl, const struct tp_layout *l)
 		pl->n_head_cols += i < l->n_fields;
 		pl->room += c->key_len + 16 + EMIT_FIXED_MAX;
 	}
+	pl->flags = t.len;
+	for (i = pl->n_head_cols; i < pl->n_cols; i++) {
+		buf_add(&t, t.data + pl->cols[i].key, pl->cols[i].key_len);
+		buf_addc(&t, '0');
+	}
+	pl->flags_len = t.len - pl->flags;
 	for (i = 0; i < PLAN_SLACK; i++)
 		buf_addc(&t, '\0');
 	pl->text = t.data;
@@ -862,6 +868,38 @@ static char *science_at(char *p, const struct emit_scikeys *e,
 	return p;
 }
 
+/*
+ * The record columns' flag members at p, from the plan's template: one
+ * copy, then each flag digit put in its place.  Flags are single digits
+ * (enum tp_flag); a reading without every record column, or a flag that
+ * is not one digit, takes members_at.  *first as for plan_members.
+ */
+static char *flags_at(char *p, const struct emit_plan *pl,
+                      const struct emit_reading *er, size_t ns, bool *first)
+{
+	const struct emit_col *c;
+	size_t i, at = 0, skip = *first ? 1 : 0;
+	unsigned f;
+
+	if (pl->n_cols == pl->n_head_cols)
+		return p;
+	if (pl->cols[pl->n_cols - 1].slot >= ns)
+		return members_at(p, pl, er, pl->n_head_cols, ns, true, first);
+	memcpy(p, pl->text + pl->flags + skip, pl->flags_len - skip);
+	for (i = pl->n_head_cols; i < pl->n_cols; i++) {
+		c = &pl->cols[i];
+		f = flag_of(&er->reading->values[c->slot]);
+		if (f > 9)
+			return members_at(p, pl, er, pl->n_head_cols, ns, true,
+			                  first);
+		at += c->key_len;
+		p[at - skip] = (char)('0' + f);
+		at++;
+	}
+	*first = false;
+	return p + pl->flags_len - skip;
+}
+
 /* json_cached in one buf_room, when it fits and every number takes the
  * fast form; false (nothing written) otherwise.  e: the keys of the
  * derived values (NULL: none). */
@@ -888,7 +926,7 @@ static bool json_in_place(struct buf *b, const struct emit_plan *pl,
 		return false;
 	p = emit_put_piece(p, pc, 3);
 	first = !pc->any_head;
-	p = members_at(p, pl, er, pl->n_head_cols, ns, true, &first);
+	p = flags_at(p, pl, er, ns, &first);
 	p = science_at(p, e, er, true, &first); /* flags: always fast */
 	buf_commit(b, put_mem(p, LIT("}}\n")));
 	return true;

@@ -150,6 +150,8 @@ struct emit_plan {
 	size_t room;        /* bytes all members may take in place */
 	char *text;         /* layout name as JSON string, then keys */
 	size_t name_len;
+	size_t flags, flags_len; /* text + flags: the record columns' flag
+	                            members, each flag a '0' to fill in */
 };
 
 struct emit_pcache; /* private to emit.c */
