@@ -277,6 +277,18 @@ static void crc_unknown(struct ld *ld, const cJSON *node)
 	       s ? "\"?" : ";", n > 7 ? n - 7 : 0);
 }
 
+/* Slicing tables for the CRC (check.h), four bytes a step; without
+ * memory for them it takes one byte a step, with the same results. */
+static void crc_sliced(struct ld *ld, struct tp_crc *c)
+{
+	uint32_t(*t)[256] = arena_alloc(ld->mem, 3 * sizeof(*t));
+
+	if (t == NULL)
+		return;
+	tp_crc_slices(c, t);
+	c->slice = (const uint32_t(*)[256])t;
+}
+
 /* `crc`: a name or parameters.  *nbytes gets the check's size. */
 static int check_kind(struct ld *ld, const cJSON *node, struct tp_check *ck,
                       unsigned *nbytes)
@@ -316,8 +328,10 @@ static int check_kind(struct ld *ld, const cJSON *node, struct tp_check *ck,
 		       ld_found(node, found, sizeof(found)));
 		rc = -1;
 	}
-	if (ck->kind == TP_CHECK_CRC && rc == 0)
+	if (ck->kind == TP_CHECK_CRC && rc == 0) {
 		*nbytes = (ck->crc.p.width + 7u) / 8u;
+		crc_sliced(ld, &ck->crc);
+	}
 	ld_pop(ld, old);
 	return rc;
 }

@@ -388,6 +388,7 @@ enum tp_status tp_crc_init(struct tp_crc *c, const struct tp_crc_params *p)
 	if ((p->poly & 1u) == 0)
 		return TP_ERR_ARG;
 	c->p = *p;
+	c->slice = NULL;
 	for (i = 0; i < 256; i++)
 		c->table[i] = table_entry(p, i);
 	if (p->check != 0 && tp_crc_compute(c, "123456789", 9) != p->check)
@@ -400,6 +401,63 @@ uint32_t tp_crc_start(const struct tp_crc *c)
 	return c->p.refin ? reflect(c->p.init, c->p.width) : c->p.init;
 }
 
+/*
+ * Slicing by 4: table k gives what a byte contributes when k zero bytes
+ * follow it, so four bytes XORed into the register at once come out of
+ * four lookups that do not wait for each other.  Reflected CRCs keep the
+ * register in its low bits and shift right; the others keep it in the
+ * top bits of 32 (shifted left by 32 - width) and shift left.
+ */
+void tp_crc_slices(const struct tp_crc *c, uint32_t out[3][256])
+{
+	unsigned sh = 32u - c->p.width;
+	uint32_t prev, i;
+	int k;
+
+	for (k = 0; k < 3; k++) {
+		for (i = 0; i < 256; i++) {
+			if (c->p.refin) {
+				prev = k == 0 ? c->table[i] : out[k - 1][i];
+				out[k][i] =
+				    (prev >> 8) ^ c->table[prev & 0xFFu];
+			} else {
+				prev =
+				    k == 0 ? c->table[i] << sh : out[k - 1][i];
+				out[k][i] =
+				    (prev << 8) ^ (c->table[prev >> 24] << sh);
+			}
+		}
+	}
+}
+
+static uint32_t update_sliced(const struct tp_crc *c, uint32_t reg,
+                              const uint8_t *b, size_t n4)
+{
+	const uint32_t(*t)[256] = c->slice, *t0 = c->table;
+	unsigned sh = 32u - c->p.width;
+	uint32_t r;
+	size_t i;
+
+	if (c->p.refin) {
+		for (i = 0; i < n4; i += 4) {
+			r = reg ^ ((uint32_t)b[i] | (uint32_t)b[i + 1] << 8 |
+			           (uint32_t)b[i + 2] << 16 |
+			           (uint32_t)b[i + 3] << 24);
+			reg = t[2][r & 0xFFu] ^ t[1][(r >> 8) & 0xFFu] ^
+			      t[0][(r >> 16) & 0xFFu] ^ t0[r >> 24];
+		}
+		return reg;
+	}
+	r = reg << sh;
+	for (i = 0; i < n4; i += 4) {
+		r ^= (uint32_t)b[i] << 24 | (uint32_t)b[i + 1] << 16 |
+		     (uint32_t)b[i + 2] << 8 | (uint32_t)b[i + 3];
+		r = t[2][r >> 24] ^ t[1][(r >> 16) & 0xFFu] ^
+		    t[0][(r >> 8) & 0xFFu] ^ (t0[r & 0xFFu] << sh);
+	}
+	return r >> sh;
+}
+
 uint32_t tp_crc_update(const struct tp_crc *c, uint32_t reg, const void *data,
                        size_t n)
 {
@@ -408,6 +466,11 @@ uint32_t tp_crc_update(const struct tp_crc *c, uint32_t reg, const void *data,
 	uint32_t mask = width_mask(c->p.width);
 	size_t i;
 
+	if (c->slice != NULL && n >= 4) {
+		reg = update_sliced(c, reg, b, n & ~(size_t)3);
+		b += n & ~(size_t)3;
+		n &= 3;
+	}
 	if (c->p.refin) {
 		for (i = 0; i < n; i++)
 			reg = (reg >> 8) ^ c->table[(reg ^ b[i]) & 0xFFu];

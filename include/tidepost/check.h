@@ -39,7 +39,16 @@ struct tp_crc_params {
 struct tp_crc {
 	struct tp_crc_params p;
 	uint32_t table[256];
+	/* Optional: three more tables from tp_crc_slices, in the caller's
+	 * memory, to take four bytes a step ("slicing by 4"); NULL (what
+	 * tp_crc_init sets): one byte a step.  The same results either
+	 * way. */
+	const uint32_t (*slice)[256];
 };
+
+/* The three tables that let tp_crc_update take four bytes a step, for
+ * c (built by tp_crc_init); set c->slice = out to use them. */
+void tp_crc_slices(const struct tp_crc *c, uint32_t out[3][256]);
 
 /* Find a named catalogue CRC (case-insensitive, aliases accepted).
  * Returns NULL if unknown. */
