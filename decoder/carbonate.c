@@ -34,35 +34,33 @@ static double k0_weiss74(double tk, double s)
 }
 
 /* Lueker et al. (2000) eqs. 9 and 10 (pK, total scale). */
-static double k1_lueker00(double tk, double s)
+static double k1_lueker00(double tk, double lt, double s)
 {
-	return pow(10.0, -(3633.86 / tk - 61.2172 + 9.6777 * log(tk) -
-	                   0.011555 * s + 0.0001152 * s * s));
+	return pow(10.0, -(3633.86 / tk - 61.2172 + 9.6777 * lt - 0.011555 * s +
+	                   0.0001152 * s * s));
 }
 
-static double k2_lueker00(double tk, double s)
+static double k2_lueker00(double tk, double lt, double s)
 {
-	return pow(10.0, -(471.78 / tk + 25.9290 - 3.16967 * log(tk) -
-	                   0.01781 * s + 0.0001122 * s * s));
+	return pow(10.0, -(471.78 / tk + 25.9290 - 3.16967 * lt - 0.01781 * s +
+	                   0.0001122 * s * s));
 }
 
 /* Dickson (1990b) eq. 23, total scale. */
-static double kb_dickson90(double tk, double s)
+static double kb_dickson90(double tk, double lt, double s)
 {
 	double sq = sqrt(s);
 	double a = -8966.90 - 2890.53 * sq - 77.942 * s + 1.728 * s * sq -
 	           0.0996 * s * s;
 
 	return exp(a / tk + 148.0248 + 137.1942 * sq + 1.62142 * s -
-	           (24.4344 + 25.085 * sq + 0.2474 * s) * log(tk) +
+	           (24.4344 + 25.085 * sq + 0.2474 * s) * lt +
 	           0.053105 * sq * tk);
 }
 
 /* Millero (1995), Guide (2007) ch. 5 total-scale form. */
-static double kw_millero95(double tk, double s)
+static double kw_millero95(double tk, double lt, double s)
 {
-	double lt = log(tk);
-
 	return exp(148.9652 - 13847.26 / tk - 23.6521 * lt +
 	           (118.67 / tk - 5.977 + 1.0495 * lt) * sqrt(s) - 0.01615 * s);
 }
@@ -74,9 +72,9 @@ static double ionic(double s)
 }
 
 /* Dickson (1990a) eq. 22, free scale, converted to mol/kg-soln. */
-static double ks_dickson90(double tk, double s)
+static double ks_dickson90(double tk, double lt, double s)
 {
-	double i = ionic(s), si = sqrt(i), lt = log(tk);
+	double i = ionic(s), si = sqrt(i);
 
 	return exp(-4276.1 / tk + 141.328 - 23.093 * lt +
 	           (-13856.0 / tk + 324.57 - 47.986 * lt) * si +
@@ -192,7 +190,7 @@ enum tp_status tp_co2_constants(double sp, double t90,
                                 struct tp_co2_consts *k)
 {
 	static const struct tp_co2_opts defaults = {TP_BORON_U74, TP_KF_PF87};
-	double tk = t90 + KELVIN;
+	double tk = t90 + KELVIN, lt; /* ln(tk), shared by five constants */
 
 	if (k == NULL)
 		return TP_ERR_ARG;
@@ -202,12 +200,13 @@ enum tp_status tp_co2_constants(double sp, double t90,
 	}
 	if (opts == NULL)
 		opts = &defaults;
+	lt = log(tk);
 	k->k0 = k0_weiss74(tk, sp);
-	k->k1 = k1_lueker00(tk, sp);
-	k->k2 = k2_lueker00(tk, sp);
-	k->kb = kb_dickson90(tk, sp);
-	k->kw = kw_millero95(tk, sp);
-	k->ks = ks_dickson90(tk, sp);
+	k->k1 = k1_lueker00(tk, lt, sp);
+	k->k2 = k2_lueker00(tk, lt, sp);
+	k->kb = kb_dickson90(tk, lt, sp);
+	k->kw = kw_millero95(tk, lt, sp);
+	k->ks = ks_dickson90(tk, lt, sp);
 	k->kf = opts->kf == TP_KF_DR79 ? kf_dr79(tk, sp) : kf_pf87(tk, sp);
 	k->ksp_ar = ksp_aragonite_m83(tk, sp);
 	k->ksp_ca = ksp_calcite_m83(tk, sp);

@@ -237,7 +237,14 @@ static uint8_t gross_range(const struct tp_qc_value_cfg *c, double v)
 
 static uint8_t climatology(const struct tp_qc_value_cfg *c, double v, int64_t t)
 {
-	const struct tp_qc_span *s = &c->climatology[tp_qc_month(t) - 1];
+	const struct tp_qc_span *s;
+	int m;
+
+	for (m = 0; m < 12 && !c->climatology[m].set; m++)
+		;
+	if (m == 12) /* no month configured: skip the calendar */
+		return TP_FLAG_NOT_EVALUATED;
+	s = &c->climatology[tp_qc_month(t) - 1];
 
 	if (!s->set)
 		return TP_FLAG_NOT_EVALUATED;
