@@ -158,7 +158,6 @@ static int decode_option(struct decode_opts *o, int c, const char *arg)
 	return -1;
 }
 
-/* Parse options; returns -1 to go on, else an exit status. */
 /* Options that cannot go together: -1 (fine), or the exit status. */
 static int decode_opts_check(const struct decode_opts *o)
 {
@@ -171,6 +170,7 @@ static int decode_opts_check(const struct decode_opts *o)
 	return -1;
 }
 
+/* Parse options; returns -1 to go on, else an exit status. */
 static int decode_parse(struct decode_opts *o, int argc, char **argv)
 {
 	static const struct option opts[] = {

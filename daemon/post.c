@@ -398,6 +398,8 @@ int post_new(const struct cfg_output *o, const struct post_ctx *ctx,
 
 static void schedule(struct post *p, int64_t delay_ms)
 {
+	if (p->stopped) /* a request that ended after post_stop: no retry */
+		return;
 	if (loop_timer_arm(p->ctx.loop, &p->retry_timer, delay_ms) != 0)
 		log_err("post: timer: %s: too many timers; output stalls",
 		        p->o->name);

@@ -412,8 +412,6 @@ static int scan(struct ring *r, struct pos *p, uint64_t *n)
 	}
 }
 
-/* Walk from p (a valid place before the head) to the first record with
- * seq >= target, or to the head.  -1: I/O error or EBADMSG. */
 /*
  * walk() would step over every record from the tail when an output's
  * acknowledgement frees a batch (hdr_tail), reading the batch a second
@@ -443,6 +441,8 @@ static void jump_ahead(const struct ring *r, struct pos *p, uint64_t target)
 	}
 }
 
+/* Walk from p (a valid place before the head) to the first record with
+ * seq >= target, or to the head.  -1: I/O error or EBADMSG. */
 static int walk(struct ring *r, struct pos *p, uint64_t target)
 {
 	struct rview v;

@@ -514,6 +514,23 @@ def stall_ends_within_timeout():
 
 
 @test
+def no_retry_scheduled_after_stop():
+    """post_stop while a request is in flight: the request may finish
+    (here it times out after the stop), but no retry is scheduled any
+    more, so the output ends "stopped" with its backlog kept (found as
+    a flaky "backoff" end of dns_failure_is_retried)."""
+    r = Run("stopfly", timeout_s=2, connect_timeout_s=1, backoff_cap_s=1)
+    with server(script=[{"stall_s": 30}]) as srv:
+        summ, rc, dt = r.drive(srv.url + "/in", fill=5, limit_s=1)
+    check(summ["state"] == "stopped", "state %s" % summ["state"])
+    check(summ["acked"] == 0 and summ["backlog"] == 5,
+          "acked %s backlog %s" % (summ["acked"], summ["backlog"]))
+    check("curl 28" in summ["_stderr"], "the in-flight request did not "
+          "end by its timeout")
+    return "in flight at stop, ended by timeout, no retry armed"
+
+
+@test
 def trickle_ends_within_timeout():
     r = Run("trickle", timeout_s=2, connect_timeout_s=1,
             backoff_cap_s=1)
