@@ -842,12 +842,7 @@ static enum tp_status decode_packet(const struct tp_layout *l, const uint8_t *p,
 
 	if (!l || !pk || (!p && len))
 		return TP_ERR_ARG;
-	/* all but the header values, which decode_header writes (n_fields
-	 * of them; a packet that fails before that has them zeroed) */
-	memset(pk, 0, offsetof(struct tp_packet, header));
-	memset(pk->header, 0,
-	       (l->n_fields < TP_MAX_FIELDS ? l->n_fields : TP_MAX_FIELDS) *
-	           sizeof pk->header[0]);
+	memset(pk, 0, sizeof *pk);
 	pk->layout = l;
 	pk->data = p;
 	pk->len = len;

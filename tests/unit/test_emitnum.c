@@ -777,6 +777,19 @@ static void demo_layout(struct tp_layout *l, enum tp_order order)
 	assert_int_equal(tp_layout_validate(l, NULL), TP_OK);
 }
 
+/* Value slots equal bit for bit (v and flag; not the padding after
+ * flag, which a struct copy need not keep: at -O0 it differs). */
+static void same_values(const struct tp_value *a, const struct tp_value *b,
+                        size_t n)
+{
+	size_t i;
+
+	for (i = 0; i < n; i++) {
+		assert_memory_equal(&a[i].v, &b[i].v, sizeof(a[i].v));
+		assert_int_equal(a[i].flag, b[i].flag);
+	}
+}
+
 /* Both decoders on one packet: same status, same packet, same records. */
 static void decode_both(const struct tp_layout *l, const uint8_t *p,
                         size_t len)
@@ -789,13 +802,17 @@ static void decode_both(const struct tp_layout *l, const uint8_t *p,
 
 	assert_int_equal(sa, sb);
 	assert_int_equal(a.n_records, b.n_records);
-	assert_memory_equal(&a, &b, sizeof(a));
+	assert_memory_equal(&a, &b, offsetof(struct tp_packet, header));
+	same_values(a.header, b.header, l->n_fields);
 	for (k = 0; k < a.n_records; k++) {
 		memset(&ra, 0, sizeof(ra));
 		memset(&rb, 0, sizeof(rb));
 		assert_int_equal(tp_decode_record(&a, k, &ra),
 		                 tp_decode_record(&b, k, &rb));
-		assert_memory_equal(&ra, &rb, sizeof(ra));
+		assert_int_equal(ra.record, rb.record);
+		assert_int_equal(ra.time_s, rb.time_s);
+		assert_int_equal(ra.n_values, rb.n_values);
+		same_values(ra.values, rb.values, ra.n_values);
 	}
 }
 
