@@ -914,11 +914,7 @@ static bool json_in_place(struct buf *b, const struct emit_plan *pl,
 
 	if (p == NULL)
 		return false;
-	p = emit_put_piece(p, pc, 0);
-	p = put_u64(p, er->reading->record);
-	p = emit_put_piece(p, pc, 1);
-	p = emit_put_time_cached(p, er->reading->time_s, &pc->day, pc->date);
-	p = emit_put_piece(p, pc, 2);
+	p = emit_put_head(p, pc, er);
 	p = members_at(p, pl, er, pl->n_head_cols, ns, false, &first);
 	if (p != NULL)
 		p = science_at(p, e, er, false, &first);

@@ -473,11 +473,7 @@ static bool csv_in_place(struct buf *b, const struct emit_csv *c, size_t li,
 	                    (c->n_names - pc->run) * (EMIT_FIXED_MAX + 24) + 2);
 	if (p == NULL)
 		return false;
-	p = emit_put_piece(p, pc, 0);
-	p = put_u64(p, er->reading->record);
-	p = emit_put_piece(p, pc, 1);
-	p = emit_put_time_cached(p, er->reading->time_s, &pc->day, pc->date);
-	p = emit_put_piece(p, pc, 2);
+	p = emit_put_head(p, pc, er);
 	for (i = pc->run; p != NULL && i < c->n_names; i++)
 		p = csv_value_at(p, er, ns, slot[i], form[i]);
 	if (p == NULL)

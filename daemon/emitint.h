@@ -282,4 +282,18 @@ static inline char *emit_put_piece(char *p, const struct emit_pcache *pc, int i)
 	return put_blocks(p, s, n);
 }
 
+/* The start of a cached record line at p: the packet's first piece, the
+ * record number, the second piece, the reading time, the third piece
+ * (JSON: up to the record's value members; CSV: up to its columns).
+ * p has room for the pieces plus 3 * 16 + 10 + EMIT_TIME_LEN. */
+static inline char *emit_put_head(char *p, struct emit_pcache *pc,
+                                  const struct emit_reading *er)
+{
+	p = emit_put_piece(p, pc, 0);
+	p = put_u64(p, er->reading->record);
+	p = emit_put_piece(p, pc, 1);
+	p = emit_put_time_cached(p, er->reading->time_s, &pc->day, pc->date);
+	return emit_put_piece(p, pc, 2);
+}
+
 #endif
